@@ -1,0 +1,87 @@
+//! `cli` is the only module that touches arguments, the environment and the terminal. It parses
+//! the command line with clap into raw arguments, turns them into typed library calls, prints
+//! summaries and maps the outcome to an exit code: 0 success, 2 bad input, 1 internal error
+//! (including a panic, which is always a bug).
+
+use std::ffi::OsString;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Exit code for input the user can fix (bad file, bad value, bad argument).
+pub const EXIT_BAD_INPUT: u8 = 2;
+/// Exit code for a bug in crowsnest.
+pub const EXIT_INTERNAL: u8 = 1;
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "crowsnest",
+    version,
+    about = "Plan where to mount wind sensors so a reduced-order wind model can be corrected live.",
+    long_about = "crowsnest reads a site (domain, wind snapshots or a precomputed POD basis, candidate \
+mounts, sensor kinds, exclusion zones), ranks where anemometers and lidar beams should go so the \
+modal coefficients of the wind model are observable, and scores layouts with Monte Carlo twin \
+experiments.\n\nA planning aid, not a certified design: siting must follow the WMO exposure \
+guidance, local codes and the rules of port, aviation and laser-safety authorities."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {}
+
+/// Runs crowsnest with the given arguments (the first is the program name).
+pub fn main_with_args<I, T>(args: I) -> ExitCode
+where
+    I: IntoIterator<Item = T>,
+    T: Into<OsString> + Clone,
+{
+    let cli = match Cli::try_parse_from(args) {
+        Ok(cli) => cli,
+        Err(err) => {
+            let _ = err.print();
+            return if err.use_stderr() {
+                ExitCode::from(EXIT_BAD_INPUT)
+            } else {
+                ExitCode::SUCCESS
+            };
+        }
+    };
+    match std::panic::catch_unwind(|| run(cli)) {
+        Ok(Ok(())) => ExitCode::SUCCESS,
+        Ok(Err(err)) => {
+            eprintln!("error: {err:#}");
+            ExitCode::from(exit_code_for(&err))
+        }
+        Err(_) => {
+            eprintln!("error: internal error (a bug in crowsnest); please report it");
+            ExitCode::from(EXIT_INTERNAL)
+        }
+    }
+}
+
+fn run(cli: Cli) -> anyhow::Result<()> {
+    match cli.command {}
+}
+
+/// Bad input (exit 2) when any error in the chain is a user-facing input error.
+fn exit_code_for(err: &anyhow::Error) -> u8 {
+    let bad_input = err.chain().any(|cause| {
+        cause.downcast_ref::<crate::io::IoError>().is_some() || cause.downcast_ref::<BadArgument>().is_some()
+    });
+    if bad_input {
+        EXIT_BAD_INPUT
+    } else {
+        EXIT_INTERNAL
+    }
+}
+
+/// A command-line value that parsed but makes no sense (for instance `--energy 1.5`).
+#[derive(Debug, thiserror::Error)]
+#[error("{option}: {message}")]
+pub struct BadArgument {
+    pub option: String,
+    pub message: String,
+}

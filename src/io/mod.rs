@@ -1,0 +1,21 @@
+//! `io` owns every file crowsnest reads: `site.toml` and the files it names (snapshots as
+//! `.npy` or CSV, `points.csv`, `candidates.csv`, zone polygons inline or as GeoJSON, a
+//! precomputed basis, layouts). It turns them into a validated [`Site`], and it owns the
+//! atomic writers for data files ([`atomic`]). Every failure is an [`IoError`] that names
+//! the file, the row or key, what was found and what was expected.
+//!
+//! It does no numerics beyond validation, prints nothing and starts no threads.
+//!
+//! Field layout, used by every later stage: a snapshot is a flat vector of
+//! `n_points × n_channels` values, index `point_idx * n_channels + channel_idx`; on a grid
+//! `point_idx = j * nx + i` (row `j` along the second plane axis). This is the C-order
+//! flattening of a `(T, ny, nx, C)` `.npy` file.
+
+pub mod atomic;
+pub mod error;
+pub mod site;
+pub mod snapshots;
+
+pub use error::IoError;
+pub use site::*;
+pub use snapshots::{InMemorySnapshots, SnapshotSource};
