@@ -1,0 +1,3 @@
+//! All integration tests, compiled into one binary; one module per feature.
+
+mod common;
