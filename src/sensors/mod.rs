@@ -12,8 +12,11 @@
 pub struct Block {
     pub candidate_idx: usize,
     pub kind_idx: usize,
-    /// `n_rows × n_modes`.
+    /// `n_rows × n_modes`: `h[(row, mode)] = Σ_(dof, w) ∈ stencil[row] w · modes[(dof, mode)]`.
     pub h: faer::Mat<f64>,
+    /// Per row, the field degrees of freedom it reads and their weights, so a reading can be
+    /// taken from a full field (truth) and not only from its modal projection.
+    pub stencil: Vec<Vec<(usize, f64)>>,
     /// Mean-field reading of each row.
     pub offset: Vec<f64>,
     /// Noise variance of each row, > 0.
