@@ -9,12 +9,12 @@
 //! built-in 2-D flow solver for demo sites and tests) beside it and `cli` (argument parsing and
 //! terminal output) on top. See `docs/architecture.md`.
 
-pub mod io;
 pub mod basis;
-pub mod sensors;
-pub mod select;
-pub mod twin;
-pub mod sweep;
-pub mod render;
-pub mod synth;
 pub mod cli;
+pub mod io;
+pub mod render;
+pub mod select;
+pub mod sensors;
+pub mod sweep;
+pub mod synth;
+pub mod twin;

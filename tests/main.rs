@@ -1,3 +1,5 @@
 //! All integration tests, compiled into one binary; one module per feature.
 
+#![allow(clippy::unwrap_used)]
+
 mod common;

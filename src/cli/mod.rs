@@ -69,7 +69,8 @@ fn run(cli: Cli) -> anyhow::Result<()> {
 /// Bad input (exit 2) when any error in the chain is a user-facing input error.
 fn exit_code_for(err: &anyhow::Error) -> u8 {
     let bad_input = err.chain().any(|cause| {
-        cause.downcast_ref::<crate::io::IoError>().is_some() || cause.downcast_ref::<BadArgument>().is_some()
+        cause.downcast_ref::<crate::io::IoError>().is_some()
+            || cause.downcast_ref::<BadArgument>().is_some()
     });
     if bad_input {
         EXIT_BAD_INPUT

@@ -15,6 +15,7 @@ pub mod atomic;
 pub mod error;
 pub mod site;
 pub mod snapshots;
+pub mod table;
 
 pub use error::IoError;
 pub use site::*;

@@ -1,5 +1,19 @@
-//! `sweep` owns trade-off studies: layouts over sensor count, budget, noise, sampling interval,
-//! background error and worst-case sensor loss, for several methods, each cell scored by the
-//! Monte Carlo twin, summarised as tidy tables.
+//! `sweep` owns trade-off studies: it enumerates the cells of a study (one per method ×
+//! setting: sensor count, budget, noise multiplier, sampling-interval multiplier, background
+//! error, or number of lost sensors), has each cell evaluated (ranked by `select`, scored by the
+//! Monte Carlo twin), and gathers the outcomes into a tidy table, one row per cell.
 //!
-//! Plan (not built yet).
+//! Cells are evaluated one after another in a fixed order (parallelism lives inside the twin's
+//! Monte Carlo), and each cell's random streams derive from the master seed and the cell, not
+//! from the order of evaluation. That is what makes resuming after an interruption, sharding
+//! over machines (`--shard i/N`) and merging give the same table as one uninterrupted run.
+//!
+//! It reads and writes files only through `io::table`; it prints nothing.
+
+mod cells;
+mod run;
+mod tidy;
+
+pub use cells::{Cell, Shard, StudyKind};
+pub use run::{run_cells, CellEvaluator, SweepError};
+pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};

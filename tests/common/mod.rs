@@ -28,5 +28,9 @@ pub fn repo_root() -> PathBuf {
 #[track_caller]
 pub fn assert_close(a: f64, b: f64, abs: f64, rel: f64) {
     let tol = abs + rel * b.abs();
-    assert!((a - b).abs() <= tol, "{a} vs {b}: differ by {} > {tol}", (a - b).abs());
+    assert!(
+        (a - b).abs() <= tol,
+        "{a} vs {b}: differ by {} > {tol}",
+        (a - b).abs()
+    );
 }
