@@ -13,10 +13,15 @@
 
 pub mod atomic;
 pub mod error;
+pub mod npy;
 pub mod site;
 pub mod snapshots;
 pub mod table;
 
 pub use error::IoError;
+pub use npy::{
+    check_shape, read_npy_f64, read_npy_header, write_npy_f32, write_npy_f64, NpyDtype, NpyHeader,
+    NpySnapshots,
+};
 pub use site::*;
 pub use snapshots::{InMemorySnapshots, SnapshotSource};
