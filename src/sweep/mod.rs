@@ -11,9 +11,11 @@
 //! It reads and writes files only through `io::table`; it prints nothing.
 
 mod cells;
+mod merge;
 mod run;
 mod tidy;
 
-pub use cells::{Cell, Shard, StudyKind};
+pub use cells::{format_setting, Cell, Shard, StudyKind};
+pub use merge::merge_outcomes;
 pub use run::{run_cells, CellEvaluator, SweepError};
 pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};

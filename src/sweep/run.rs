@@ -24,7 +24,8 @@ pub enum SweepError {
     Cell { key: String, message: String },
 }
 
-/// Evaluates one cell: ranks its layout and scores it. Implementations must derive every
+/// Evaluates one cell: ranks its layout and scores it (`cell_idx` of the outcome is set by
+/// the caller). Implementations must derive every
 /// random stream from the cell itself (its key) and a master seed, never from call order.
 pub trait CellEvaluator {
     fn evaluate(&self, cell: &Cell) -> Result<CellOutcome, SweepError>;
@@ -57,21 +58,21 @@ pub fn run_cells(
             );
         }
     }
-    let owned: Vec<&Cell> = cells
+    let owned: Vec<(usize, &Cell)> = cells
         .iter()
         .enumerate()
         .filter(|(idx, _)| shard.owns(*idx))
-        .map(|(_, cell)| cell)
         .collect();
     let mut outcomes = Vec::with_capacity(owned.len());
-    for (done_idx, cell) in owned.iter().enumerate() {
+    for (done_idx, (cell_idx, cell)) in owned.iter().enumerate() {
         progress(done_idx, owned.len());
         let key = cell.key();
         if let Some(previous) = done.iter().find(|o| o.cell.key() == key) {
             outcomes.push(previous.clone());
             continue;
         }
-        let outcome = evaluator.evaluate(cell)?;
+        let mut outcome = evaluator.evaluate(cell)?;
+        outcome.cell_idx = *cell_idx;
         if let Some(path) = journal {
             append_journal_line(path, &journal_line(&outcome.to_row()))?;
         }
@@ -124,6 +125,7 @@ mod tests {
             self.calls.borrow_mut().push(cell.key());
             let v = cell.setting;
             Ok(CellOutcome {
+                cell_idx: 0,
                 cell: cell.clone(),
                 n_sensors: v as usize,
                 cost: 100.0 * v,
@@ -204,12 +206,13 @@ mod tests {
             fail_at: None,
         };
         let whole = run_cells(&cells, &echo, Shard::WHOLE, None, &mut |_, _| {}).unwrap();
-        let mut merged = Vec::new();
-        for index in 0..2 {
+        let mut parts = Vec::new();
+        for index in (0..2).rev() {
             let shard = Shard { index, count: 2 };
-            merged.extend(run_cells(&cells, &echo, shard, None, &mut |_, _| {}).unwrap());
+            parts.extend(run_cells(&cells, &echo, shard, None, &mut |_, _| {}).unwrap());
         }
-        merged.sort_by_key(|o| cells.iter().position(|c| c.key() == o.cell.key()));
-        assert_eq!(merged, whole);
+        assert_eq!(crate::sweep::merge_outcomes(parts.clone()).unwrap(), whole);
+        parts.retain(|o| o.cell_idx != 2);
+        assert!(crate::sweep::merge_outcomes(parts).is_err());
     }
 }

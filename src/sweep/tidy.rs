@@ -15,6 +15,8 @@ pub struct RmseStats {
 /// What one cell of a study produced.
 #[derive(Debug, Clone, PartialEq)]
 pub struct CellOutcome {
+    /// Position of the cell in the study's full cell list (merging shards sorts by it).
+    pub cell_idx: usize,
     pub cell: Cell,
     pub n_sensors: usize,
     /// Total cost of the layout scored in this cell.
@@ -34,7 +36,8 @@ pub struct CellOutcome {
 }
 
 /// Column names of the tidy table, in order.
-pub const TIDY_HEADER: [&str; 22] = [
+pub const TIDY_HEADER: [&str; 23] = [
+    "cell_idx",
     "study",
     "method",
     "setting",
@@ -76,6 +79,7 @@ impl CellOutcome {
         let t = &self.time_mean_rmse;
         let f = &self.final_rmse;
         vec![
+            self.cell_idx.to_string(),
             self.cell.study.to_string(),
             self.cell.method.clone(),
             s(self.cell.setting),
@@ -135,22 +139,23 @@ impl CellOutcome {
                 p95: num(first + 4)?,
             })
         };
-        let study: StudyKind = row[0].parse()?;
+        let study: StudyKind = row[1].parse()?;
         Ok(CellOutcome {
+            cell_idx: count(0)?,
             cell: Cell {
                 study,
-                method: row[1].clone(),
-                setting: num(2)?,
+                method: row[2].clone(),
+                setting: num(3)?,
             },
-            n_sensors: count(3)?,
-            cost: num(4)?,
-            criterion: num(5)?,
-            time_mean_rmse: stats(6)?,
-            final_rmse: stats(11)?,
-            free_time_mean_rmse: num(16)?,
-            n_runs: count(18)?,
-            n_diverged: count(19)?,
-            sensors: row[20].clone(),
+            n_sensors: count(4)?,
+            cost: num(5)?,
+            criterion: num(6)?,
+            time_mean_rmse: stats(7)?,
+            final_rmse: stats(12)?,
+            free_time_mean_rmse: num(17)?,
+            n_runs: count(19)?,
+            n_diverged: count(20)?,
+            sensors: row[21].clone(),
         })
     }
 }
@@ -162,6 +167,7 @@ mod tests {
     #[test]
     fn row_round_trips_bit_identical() {
         let outcome = CellOutcome {
+            cell_idx: 4,
             cell: Cell {
                 study: StudyKind::Count,
                 method: "greedy-d".into(),
