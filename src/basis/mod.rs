@@ -1,10 +1,35 @@
 //! `basis` owns the reduced-order description of the flow: the mean field and the POD modes,
-//! orthonormal in the weighted inner product `⟨f, g⟩ = Σ_p w_p Σ_c f_pc g_pc` (cell weights
+//! orthonormal in the weighted inner product `⟨f, g⟩_W = Σ_p w_p Σ_c f_pc g_pc` (cell weights
 //! `w_p` from the domain, 0 on solid cells), with the energy of every mode.
 //!
-//! Plan (not built yet): POD by the method of snapshots (Sirovich 1987) with the Gram matrix
-//! accumulated block by block from an `io::SnapshotSource`, and by thin SVD (faer); rank by
-//! energy fraction or a fixed count. It reads no files itself and prints nothing.
+//! Two routes, selected by [`PodMethod`]: the method of snapshots (Sirovich 1987) with the
+//! Gram matrix accumulated block by block from an [`io::SnapshotSource`] (see
+//! [`snapshots_method`]), and the thin SVD of the weighted, centred snapshot matrix (see
+//! [`svd_method`]). Truncation by [`Rank`]. Energies are `λ_i = σ_i² / T`: the variance over
+//! the `T` snapshots of the modal coefficient `a_i(t) = ⟨φ_i, x_t − x̄⟩_W` (population
+//! variance, divided by `T`), in field units² × weight units (m² or m³).
+//!
+//! [`project`] and [`project_field`] give modal coefficients and truncation residuals for later
+//! stages. It reads no files itself (sources and basis files come from `io`), prints nothing,
+//! and reports progress through a callback `progress(done, total)`.
+//!
+//! [`io::SnapshotSource`]: crate::io::SnapshotSource
+
+pub mod blocks;
+pub mod error;
+pub mod project;
+pub mod rank;
+pub mod snapshots_method;
+pub mod svd_method;
+pub mod weights;
+
+pub use error::BasisError;
+pub use project::{project, project_field, Projection};
+pub use rank::{energy_fractions, Rank};
+
+use faer::Par;
+
+use crate::io::SnapshotSource;
 
 /// Mean field and POD modes of a site.
 #[derive(Debug, Clone)]
@@ -14,6 +39,7 @@ pub struct Basis {
     /// Temporal mean of the snapshots, length `n_points * n_channels` (field layout of `io`).
     pub mean: Vec<f64>,
     /// Modes as columns, `n_dof × n_modes`, orthonormal in the weighted inner product.
+    /// Zero on solid cells. Sign convention: each mode's entry of largest magnitude is positive.
     pub modes: faer::Mat<f64>,
     /// Energy (variance of the modal coefficient, field units² · weight) of every computed
     /// mode, descending; at least `n_modes` long, so truncated energy stays known.
@@ -30,4 +56,119 @@ impl Basis {
     pub fn n_dof(&self) -> usize {
         self.n_points * self.n_channels
     }
+
+    /// Sum of all known energies (kept and truncated).
+    pub fn total_energy(&self) -> f64 {
+        self.energies.iter().sum()
+    }
+
+    /// Fraction of the total energy carried by the kept modes.
+    pub fn captured_fraction(&self) -> f64 {
+        let total = self.total_energy();
+        if total > 0.0 {
+            self.energies[..self.n_modes()].iter().sum::<f64>() / total
+        } else {
+            0.0
+        }
+    }
+}
+
+/// What either POD route returns: temporal mean, kept modes (`n_dof × r`) and the energies
+/// of every mode above round-off, descending.
+#[derive(Debug, Clone)]
+pub struct Decomposition {
+    pub mean: Vec<f64>,
+    pub modes: faer::Mat<f64>,
+    pub energies: Vec<f64>,
+}
+
+/// Which decomposition computes the POD.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum PodMethod {
+    /// Method of snapshots: streams the snapshots twice, memory `O(T² + n_dof · r)`. Default.
+    #[default]
+    Snapshots,
+    /// Thin SVD of the whole weighted snapshot matrix held in memory; most accurate for modes
+    /// of very small energy.
+    Svd,
+}
+
+/// Settings of a POD computation.
+#[derive(Debug, Clone, Copy)]
+pub struct PodOptions {
+    pub method: PodMethod,
+    pub rank: Rank,
+    /// Degrees of freedom per streamed block; `None` picks about 16 MiB of snapshot data.
+    pub block_size: Option<usize>,
+    /// Parallelism of the dense kernels; results are bit-identical for any thread count.
+    pub par: Par,
+}
+
+impl Default for PodOptions {
+    fn default() -> Self {
+        Self {
+            method: PodMethod::default(),
+            rank: Rank::default(),
+            block_size: None,
+            par: Par::rayon(0),
+        }
+    }
+}
+
+/// POD of the snapshots of `source` on a domain with `point_weights` (one per point, 0 on
+/// solid) and `n_channels` channels per point. `progress(done, total)` is called as blocks
+/// finish.
+pub fn pod(
+    source: &mut dyn SnapshotSource,
+    point_weights: &[f64],
+    n_channels: usize,
+    options: &PodOptions,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<Basis, BasisError> {
+    let n_points = point_weights.len();
+    let expected = n_points * n_channels;
+    if source.n_dof() != expected {
+        return Err(BasisError::DofMismatch {
+            found: source.n_dof(),
+            expected,
+            n_points,
+            n_channels,
+        });
+    }
+    let n_snapshots = source.n_snapshots();
+    if n_snapshots < 2 {
+        return Err(BasisError::TooFewSnapshots { n_snapshots });
+    }
+    options.rank.validate(n_snapshots)?;
+    let dof_weights = weights::dof_weights(point_weights, n_channels);
+    let Decomposition {
+        mean,
+        modes,
+        energies,
+    } = match options.method {
+        PodMethod::Snapshots => snapshots_method::pod_by_snapshots(
+            source,
+            &dof_weights,
+            options.rank,
+            options.block_size,
+            options.par,
+            progress,
+        )?,
+        PodMethod::Svd => svd_method::pod_by_svd(
+            source,
+            &dof_weights,
+            options.rank,
+            options.block_size,
+            options.par,
+            progress,
+        )?,
+    };
+    Ok(Basis {
+        n_points,
+        n_channels,
+        mean,
+        modes,
+        energies,
+        weights: point_weights.to_vec(),
+    })
 }

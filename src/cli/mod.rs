@@ -71,6 +71,9 @@ fn exit_code_for(err: &anyhow::Error) -> u8 {
     let bad_input = err.chain().any(|cause| {
         cause.downcast_ref::<crate::io::IoError>().is_some()
             || cause.downcast_ref::<BadArgument>().is_some()
+            || cause
+                .downcast_ref::<crate::basis::BasisError>()
+                .is_some_and(|e| e.is_bad_input())
     });
     if bad_input {
         EXIT_BAD_INPUT
