@@ -12,6 +12,7 @@
 //! flattening of a `(T, ny, nx, C)` `.npy` file.
 
 pub mod atomic;
+pub mod basis_files;
 pub mod error;
 pub mod npy;
 pub mod site;
