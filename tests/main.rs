@@ -4,3 +4,4 @@
 
 mod basis;
 mod common;
+mod sensors;
