@@ -70,6 +70,9 @@ fn run(cli: Cli) -> anyhow::Result<()> {
 fn exit_code_for(err: &anyhow::Error) -> u8 {
     let bad_input = err.chain().any(|cause| {
         cause.downcast_ref::<crate::io::IoError>().is_some()
+            || cause
+                .downcast_ref::<crate::sensors::SensorError>()
+                .is_some()
             || cause.downcast_ref::<BadArgument>().is_some()
             || cause
                 .downcast_ref::<crate::basis::BasisError>()
