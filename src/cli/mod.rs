@@ -8,6 +8,8 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+mod merge;
+
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
 pub const EXIT_BAD_INPUT: u8 = 2;
 /// Exit code for a bug in crowsnest.
@@ -30,7 +32,10 @@ pub struct Cli {
 }
 
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Join the study tables of `sweep --shard i/N` runs into one table.
+    Merge(merge::MergeArgs),
+}
 
 /// Runs crowsnest with the given arguments (the first is the program name).
 pub fn main_with_args<I, T>(args: I) -> ExitCode
@@ -63,7 +68,9 @@ where
 }
 
 fn run(cli: Cli) -> anyhow::Result<()> {
-    match cli.command {}
+    match cli.command {
+        Command::Merge(args) => merge::run(args),
+    }
 }
 
 /// Bad input (exit 2) when any error in the chain is a user-facing input error.
