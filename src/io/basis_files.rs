@@ -11,7 +11,7 @@
 //! orthonormal in the weighted inner product. Plain data in and out: this file knows nothing of
 //! `basis::Basis`.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use faer::linalg::matmul::matmul;
 use faer::{Accum, Mat, MatRef, Par};
@@ -22,6 +22,25 @@ use super::{BasisFiles, Domain, IoError};
 
 /// Largest `max |ΦᵀWΦ − I|` of an imported basis accepted without a warning.
 pub const ORTHONORMALITY_WARNING: f64 = 1e-6;
+
+/// The paths of the three files of a basis.
+#[derive(Debug, Clone)]
+pub struct BasisPaths {
+    pub modes: PathBuf,
+    pub mean: PathBuf,
+    pub energies: PathBuf,
+}
+
+impl BasisPaths {
+    /// The files named by a site's `[basis]` table.
+    pub fn of_site(files: &BasisFiles) -> Self {
+        Self {
+            modes: files.modes.clone(),
+            mean: files.mean.clone(),
+            energies: files.energies.clone(),
+        }
+    }
+}
 
 /// A basis read from files, validated against the site's domain.
 #[derive(Debug, Clone)]
@@ -66,13 +85,13 @@ pub fn write_basis_files(
     mean: &[f64],
     modes: MatRef<'_, f64>,
     energies: &[f64],
-) -> Result<BasisFiles, IoError> {
+) -> Result<BasisPaths, IoError> {
     let n_dof = domain.n_points() * n_channels;
     assert_eq!(mean.len(), n_dof, "mean length");
     assert_eq!(modes.nrows(), n_dof, "mode length");
     assert!(energies.len() >= modes.ncols(), "an energy per mode");
     let (axes, _) = spatial_axes(domain);
-    let files = BasisFiles {
+    let files = BasisPaths {
         modes: dir.join("modes.npy"),
         mean: dir.join("mean.npy"),
         energies: dir.join("energies.csv"),
@@ -120,9 +139,10 @@ pub fn write_basis_files(
     Ok(files)
 }
 
-/// Reads and validates a basis for a domain with `n_channels` channels per point.
+/// Reads and validates a basis for a domain with `n_channels` channels per point; `files` is
+/// the site's `[basis]` table or what [`write_basis_files`] returned.
 pub fn read_basis_files(
-    files: &BasisFiles,
+    files: &BasisPaths,
     domain: &Domain,
     n_channels: usize,
 ) -> Result<LoadedBasis, IoError> {

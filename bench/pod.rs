@@ -1,0 +1,148 @@
+//! Speed of the POD (issue 2, item 8): method of snapshots on a 65,536-dof × 1,000-snapshot
+//! float64 matrix, the Gram step's GFLOP/s against a plain faer matrix product of the same
+//! shapes, and the peak resident memory of the chunked path streaming from a `.npy` file.
+//!
+//! Not a test: run through `bench/pod.sh`, which makes the input with `bench/pod_ref.py`, runs
+//! this binary and the NumPy reference in one go and prints the ratios.
+//!
+//! Usage: `pod memory FILE` (whole matrix in memory, all 999 modes lifted, like the NumPy
+//! reference) or `pod chunked FILE N_MODES` (streams from FILE; run in its own process so its
+//! peak resident set is its own).
+
+use std::path::Path;
+use std::time::Instant;
+
+use crowsnest::basis::snapshots_method::accumulate_gram;
+use crowsnest::basis::{pod, PodMethod, PodOptions, Rank};
+use crowsnest::io::{read_npy_f64, InMemorySnapshots, NpySnapshots, SnapshotSource};
+use faer::linalg::matmul::matmul;
+use faer::{Accum, Mat, MatRef, Par};
+
+/// Peak resident set of this process, bytes (Linux `VmHWM`).
+fn peak_rss_bytes() -> u64 {
+    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    status
+        .lines()
+        .find_map(|line| line.strip_prefix("VmHWM:"))
+        .and_then(|rest| {
+            rest.trim()
+                .trim_end_matches("kB")
+                .trim()
+                .parse::<u64>()
+                .ok()
+        })
+        .map_or(0, |kb| kb * 1024)
+}
+
+fn best_of<F: FnMut() -> f64>(n_runs: usize, mut run: F) -> f64 {
+    (0..n_runs).map(|_| run()).fold(f64::INFINITY, f64::min)
+}
+
+fn memory(path: &Path) {
+    let (shape, data) = read_npy_f64(path).expect("bench input");
+    let (n_snapshots, n_dof) = (shape[0], shape[1..].iter().product::<usize>());
+    let source = InMemorySnapshots::new(n_snapshots, n_dof, data);
+    let weights = vec![1.0; n_dof];
+    let par = Par::rayon(0);
+    println!(
+        "input: {n_dof} dof x {n_snapshots} snapshots, float64, {} threads",
+        par.degree()
+    );
+
+    // Whole POD, lifting every non-zero mode (as the NumPy eigh route does).
+    let options = PodOptions {
+        method: PodMethod::Snapshots,
+        rank: Rank::Count(n_snapshots - 1),
+        block_size: None,
+        par,
+    };
+    let pod_seconds = best_of(2, || {
+        let mut src = source.clone();
+        let start = Instant::now();
+        let basis = pod(&mut src, &weights, 1, &options, &mut |_, _| {}).expect("pod");
+        let seconds = start.elapsed().as_secs_f64();
+        assert_eq!(basis.n_modes(), n_snapshots - 1);
+        seconds
+    });
+    println!(
+        "crowsnest pod (method of snapshots, {} modes): {pod_seconds:.3} s",
+        n_snapshots - 1
+    );
+
+    // Gram step alone: lower triangle only, n·T² useful flops (n·T·(T+1) exactly).
+    let gram_seconds = best_of(3, || {
+        let mut src = source.clone();
+        let start = Instant::now();
+        let block = crowsnest::basis::blocks::block_size_for(n_snapshots, n_dof, None);
+        let gram = accumulate_gram(&mut src, &weights, block, par, &mut |_| {}).expect("gram");
+        let seconds = start.elapsed().as_secs_f64();
+        assert_eq!(gram.gram.nrows(), n_snapshots);
+        seconds
+    });
+    let gram_flops = (n_dof * n_snapshots * (n_snapshots + 1)) as f64;
+
+    // Plain faer product of the same operands, full T × T output: 2·n·T² flops.
+    let x = MatRef::from_column_major_slice(&source.data, n_dof, n_snapshots);
+    let mut full = Mat::<f64>::zeros(n_snapshots, n_snapshots);
+    let plain_seconds = best_of(3, || {
+        let start = Instant::now();
+        matmul(full.as_mut(), Accum::Replace, x.transpose(), x, 1.0, par);
+        start.elapsed().as_secs_f64()
+    });
+    let plain_flops = 2.0 * (n_dof * n_snapshots * n_snapshots) as f64;
+    let gram_rate = gram_flops / gram_seconds / 1e9;
+    let plain_rate = plain_flops / plain_seconds / 1e9;
+    println!(
+        "gram step (read, centre, lower triangle): {gram_seconds:.3} s, {gram_rate:.1} GFLOP/s"
+    );
+    println!("plain faer matmul XᵀX (full): {plain_seconds:.3} s, {plain_rate:.1} GFLOP/s");
+    println!(
+        "gram GFLOP/s vs plain: {:.0} %",
+        100.0 * gram_rate / plain_rate
+    );
+    println!("RESULT pod_seconds {pod_seconds:.4}");
+}
+
+fn chunked(path: &Path, n_modes: usize) {
+    let mut source = NpySnapshots::open(path).expect("bench input");
+    let (n_snapshots, n_dof) = (source.n_snapshots(), source.n_dof());
+    let weights = vec![1.0; n_dof];
+    let options = PodOptions {
+        method: PodMethod::Snapshots,
+        rank: Rank::Count(n_modes),
+        block_size: None,
+        par: Par::rayon(0),
+    };
+    let start = Instant::now();
+    let basis = pod(&mut source, &weights, 1, &options, &mut |_, _| {}).expect("pod");
+    let seconds = start.elapsed().as_secs_f64();
+    let file_bytes = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+    let rss = peak_rss_bytes();
+    println!(
+        "chunked from .npy ({n_dof} dof x {n_snapshots} snapshots, {} modes): {seconds:.3} s",
+        basis.n_modes()
+    );
+    println!(
+        "peak RSS {:.1} MiB = {:.1} % of the {:.1} MiB file",
+        rss as f64 / 1048576.0,
+        100.0 * rss as f64 / file_bytes as f64,
+        file_bytes as f64 / 1048576.0
+    );
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
+    match args
+        .iter()
+        .map(String::as_str)
+        .collect::<Vec<_>>()
+        .as_slice()
+    {
+        ["memory", file] => memory(Path::new(file)),
+        ["chunked", file, n_modes] => chunked(Path::new(file), n_modes.parse().expect("N_MODES")),
+        _ => eprintln!("usage: pod memory FILE | pod chunked FILE N_MODES (see bench/pod.sh)"),
+    }
+}
