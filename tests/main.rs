@@ -5,3 +5,4 @@
 mod basis;
 mod common;
 mod sensors;
+mod select;
