@@ -4,5 +4,5 @@
 
 mod basis;
 mod common;
-mod sensors;
 mod select;
+mod sensors;

@@ -4,8 +4,8 @@
 //! test per constraint type.
 
 use crowsnest::select::{
-    evaluate_set, lazy_pivoted_qr, rank, CandidatePlace, CandidateRows, Constraints, Criterion, Limit, Method,
-    Prior, Problem, RankOptions, SelectError,
+    evaluate_set, lazy_pivoted_qr, rank, CandidatePlace, CandidateRows, Constraints, Criterion,
+    Limit, Method, Prior, Problem, RankOptions, SelectError,
 };
 use crowsnest::sensors::Block;
 use rand::{Rng, SeedableRng};
@@ -23,7 +23,12 @@ fn places(n: usize) -> Vec<CandidatePlace> {
 
 /// A problem with one single-row block per candidate from row-major `data` (already whitened
 /// by the noise), flat or given prior.
-fn single_row_problem(n_modes: usize, data: Vec<f64>, prior: &Prior, places: Vec<CandidatePlace>) -> Problem {
+fn single_row_problem(
+    n_modes: usize,
+    data: Vec<f64>,
+    prior: &Prior,
+    places: Vec<CandidatePlace>,
+) -> Problem {
     let rows = CandidateRows::from_single_rows(n_modes, data);
     let n = rows.n_blocks();
     Problem::from_noise_whitened(
@@ -72,14 +77,25 @@ fn qr_pivots_equal_lapack() {
             .collect();
         let (r, n) = (a.len(), a[0].len());
         // Candidate rows are the columns of A.
-        let data: Vec<f64> = (0..n).flat_map(|j| a.iter().map(move |row| row[j])).collect();
+        let data: Vec<f64> = (0..n)
+            .flat_map(|j| a.iter().map(move |row| row[j]))
+            .collect();
         let rows = CandidateRows::from_single_rows(r, data.clone());
         let out = lazy_pivoted_qr(&rows, &[], r, |_| true);
         assert_eq!(out.order, pivots[..r].to_vec(), "case {case}");
         // Through the public ranking with the flat prior (a uniform scale keeps the pivots).
         let problem = single_row_problem(r, data, &Prior::Flat, places(n));
-        let ranking = rank(&problem, &options(Method::Qr, Criterion::D, Limit::Count(r))).unwrap();
-        let order: Vec<usize> = ranking.layout.entries.iter().map(|e| e.candidate_idx).collect();
+        let ranking = rank(
+            &problem,
+            &options(Method::Qr, Criterion::D, Limit::Count(r)),
+        )
+        .unwrap();
+        let order: Vec<usize> = ranking
+            .layout
+            .entries
+            .iter()
+            .map(|e| e.candidate_idx)
+            .collect();
         assert_eq!(order, pivots[..r].to_vec(), "case {case} via rank");
     }
 }
@@ -112,19 +128,46 @@ fn fekete_points_from_exchange_and_qr() {
     let xs: Vec<f64> = (0..n).map(|i| -1.0 + i as f64 * step).collect();
     let data: Vec<f64> = xs.iter().flat_map(|&x| legendre_row(x, p)).collect();
     let problem = single_row_problem(p + 1, data, &Prior::Flat, places(n));
-    let gll = [-1.0, -(3.0f64 / 7.0).sqrt(), 0.0, (3.0f64 / 7.0).sqrt(), 1.0];
+    let gll = [
+        -1.0,
+        -(3.0f64 / 7.0).sqrt(),
+        0.0,
+        (3.0f64 / 7.0).sqrt(),
+        1.0,
+    ];
 
-    let ranking = rank(&problem, &options(Method::Exchange, Criterion::D, Limit::Count(p + 1))).unwrap();
-    let mut chosen: Vec<f64> = ranking.layout.entries.iter().map(|e| xs[e.candidate_idx]).collect();
+    let ranking = rank(
+        &problem,
+        &options(Method::Exchange, Criterion::D, Limit::Count(p + 1)),
+    )
+    .unwrap();
+    let mut chosen: Vec<f64> = ranking
+        .layout
+        .entries
+        .iter()
+        .map(|e| xs[e.candidate_idx])
+        .collect();
     chosen.sort_by(f64::total_cmp);
     for (c, g) in chosen.iter().zip(&gll) {
         assert!((c - g).abs() <= step, "exchange point {c} vs GLL {g}");
     }
 
-    let qr = rank(&problem, &options(Method::Qr, Criterion::D, Limit::Count(p + 1))).unwrap();
-    let qr_points: Vec<f64> = qr.layout.entries.iter().map(|e| xs[e.candidate_idx]).collect();
+    let qr = rank(
+        &problem,
+        &options(Method::Qr, Criterion::D, Limit::Count(p + 1)),
+    )
+    .unwrap();
+    let qr_points: Vec<f64> = qr
+        .layout
+        .entries
+        .iter()
+        .map(|e| xs[e.candidate_idx])
+        .collect();
     let ratio = vandermonde_abs_det(&qr_points, p) / vandermonde_abs_det(&gll, p);
-    assert!(ratio >= 0.9 && ratio <= 1.0 + 1e-9, "QR points {qr_points:?}: det ratio {ratio}");
+    assert!(
+        (0.9..=1.0 + 1e-9).contains(&ratio),
+        "QR points {qr_points:?}: det ratio {ratio}"
+    );
 }
 
 /// Small random instance with single- and two-row blocks, energies prior, random costs.
@@ -132,7 +175,9 @@ fn random_instance(seed: u64, n_blocks: usize, n_modes: usize) -> Problem {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let sizes: Vec<usize> = (0..n_blocks).map(|_| rng.random_range(1..=2)).collect();
     let n_rows: usize = sizes.iter().sum();
-    let data: Vec<f64> = (0..n_rows * n_modes).map(|_| rng.random_range(-1.0..1.0)).collect();
+    let data: Vec<f64> = (0..n_rows * n_modes)
+        .map(|_| rng.random_range(-1.0..1.0))
+        .collect();
     let energies: Vec<f64> = (0..n_modes).map(|i| 2.0 * 0.6f64.powi(i as i32)).collect();
     let costs: Vec<f64> = (0..n_blocks).map(|_| rng.random_range(1.0..5.0)).collect();
     Problem::from_noise_whitened(
@@ -171,16 +216,31 @@ fn greedy_bound_and_exchange_against_brute_force() {
         let prior = problem.log_det_prior_inv;
         for k in 1..=5usize {
             let opt = brute_force(&problem, |s| s.len() == k);
-            let greedy = rank(&problem, &options(Method::Greedy, Criterion::D, Limit::Count(k))).unwrap();
+            let greedy = rank(
+                &problem,
+                &options(Method::Greedy, Criterion::D, Limit::Count(k)),
+            )
+            .unwrap();
             let factor = 1.0 - (1.0 - 1.0 / k as f64).powi(k as i32);
             assert!(
                 greedy.d_value - prior >= factor * (opt - prior) - 1e-9,
                 "seed {seed} k {k}: greedy {} opt {opt}",
                 greedy.d_value
             );
-            assert!(greedy.bound.bound >= opt - 1e-9, "seed {seed} k {k}: bound {} < opt {opt}", greedy.bound.bound);
-            assert!(greedy.bound.converged, "seed {seed} k {k}: bound did not converge");
-            let exch = rank(&problem, &options(Method::Exchange, Criterion::D, Limit::Count(k))).unwrap();
+            assert!(
+                greedy.bound.bound >= opt - 1e-9,
+                "seed {seed} k {k}: bound {} < opt {opt}",
+                greedy.bound.bound
+            );
+            assert!(
+                greedy.bound.converged,
+                "seed {seed} k {k}: bound did not converge"
+            );
+            let exch = rank(
+                &problem,
+                &options(Method::Exchange, Criterion::D, Limit::Count(k)),
+            )
+            .unwrap();
             assert!(exch.d_value >= greedy.d_value - 1e-12);
             assert!(exch.d_value <= opt + 1e-9);
             assert_eq!(exch.layout.entries.len(), k);
@@ -196,16 +256,39 @@ fn budgeted_greedy_against_brute_force() {
         let problem = random_instance(seed, 14, 4);
         let prior = problem.log_det_prior_inv;
         for budget in [3.0, 6.0, 9.5] {
-            let opt = brute_force(&problem, |s| s.iter().map(|&b| problem.block_cost[b]).sum::<f64>() <= budget);
-            let ranking = rank(&problem, &options(Method::Greedy, Criterion::D, Limit::Budget(budget))).unwrap();
-            let spent = ranking.layout.entries.last().map_or(0.0, |e| e.cumulative_cost);
+            let opt = brute_force(&problem, |s| {
+                s.iter().map(|&b| problem.block_cost[b]).sum::<f64>() <= budget
+            });
+            let ranking = rank(
+                &problem,
+                &options(Method::Greedy, Criterion::D, Limit::Budget(budget)),
+            )
+            .unwrap();
+            let spent = ranking
+                .layout
+                .entries
+                .last()
+                .map_or(0.0, |e| e.cumulative_cost);
             assert!(spent <= budget + 1e-12);
             let factor = 0.5 * (1.0 - (-1.0f64).exp());
             assert!(ranking.d_value - prior >= factor * (opt - prior) - 1e-9);
-            assert!(ranking.bound.bound >= opt - 1e-9, "seed {seed} budget {budget}");
-            let exch = rank(&problem, &options(Method::Exchange, Criterion::D, Limit::Budget(budget))).unwrap();
+            assert!(
+                ranking.bound.bound >= opt - 1e-9,
+                "seed {seed} budget {budget}"
+            );
+            let exch = rank(
+                &problem,
+                &options(Method::Exchange, Criterion::D, Limit::Budget(budget)),
+            )
+            .unwrap();
             assert!(exch.d_value >= ranking.d_value - 1e-12);
-            assert!(exch.layout.entries.last().map_or(0.0, |e| e.cumulative_cost) <= budget + 1e-12);
+            assert!(
+                exch.layout
+                    .entries
+                    .last()
+                    .map_or(0.0, |e| e.cumulative_cost)
+                    <= budget + 1e-12
+            );
         }
     }
 }
@@ -232,10 +315,25 @@ fn d_gain_is_twice_mutual_information() {
             }
         })
         .collect();
-    let problem = Problem::from_blocks(&blocks, &Prior::Energies(energies.clone()), places(n_blocks), vec!["p".into()]).unwrap();
-    let ranking = rank(&problem, &options(Method::Greedy, Criterion::D, Limit::Count(3))).unwrap();
+    let problem = Problem::from_blocks(
+        &blocks,
+        &Prior::Energies(energies.clone()),
+        places(n_blocks),
+        vec!["p".into()],
+    )
+    .unwrap();
+    let ranking = rank(
+        &problem,
+        &options(Method::Greedy, Criterion::D, Limit::Count(3)),
+    )
+    .unwrap();
     let gain: f64 = ranking.layout.entries.iter().map(|e| e.marginal_gain).sum();
-    let chosen: Vec<&Block> = ranking.layout.entries.iter().map(|e| &blocks[e.candidate_idx]).collect();
+    let chosen: Vec<&Block> = ranking
+        .layout
+        .entries
+        .iter()
+        .map(|e| &blocks[e.candidate_idx])
+        .collect();
     let n_y: usize = chosen.iter().map(|b| b.n_rows()).sum();
     let mut h = faer::Mat::<f64>::zeros(n_y, n_modes);
     let mut r_diag = Vec::new();
@@ -249,7 +347,12 @@ fn d_gain_is_twice_mutual_information() {
             at += 1;
         }
     }
-    let lambda = faer::Mat::<f64>::from_fn(n_modes, n_modes, |i, j| if i == j { energies[i] } else { 0.0 });
+    let lambda =
+        faer::Mat::<f64>::from_fn(
+            n_modes,
+            n_modes,
+            |i, j| if i == j { energies[i] } else { 0.0 },
+        );
     let r = faer::Mat::<f64>::from_fn(n_y, n_y, |i, j| if i == j { r_diag[i] } else { 0.0 });
     let sigma_y = &h * &lambda * h.transpose() + &r;
     let mi = 0.5 * (sigma_y.determinant().ln() - r.determinant().ln());
@@ -294,7 +397,12 @@ fn lattice_problem() -> Problem {
     .unwrap()
 }
 
-fn run(problem: &Problem, method: Method, limit: Limit, constraints: Constraints) -> Result<crowsnest::select::Ranking, SelectError> {
+fn run(
+    problem: &Problem,
+    method: Method,
+    limit: Limit,
+    constraints: Constraints,
+) -> Result<crowsnest::select::Ranking, SelectError> {
     let mut o = options(method, Criterion::D, limit);
     o.constraints = constraints;
     rank(problem, &o)
@@ -303,24 +411,61 @@ fn run(problem: &Problem, method: Method, limit: Limit, constraints: Constraints
 #[test]
 fn constraint_exclusion_polygon() {
     let problem = lattice_problem();
-    let free = run(&problem, Method::Greedy, Limit::Count(1), Constraints::default()).unwrap();
+    let free = run(
+        &problem,
+        Method::Greedy,
+        Limit::Count(1),
+        Constraints::default(),
+    )
+    .unwrap();
     let best = free.layout.entries[0].candidate_idx;
     let p = problem.places[best].position;
-    let zone = vec![[p[0] - 1.0, p[1] - 1.0], [p[0] + 1.0, p[1] - 1.0], [p[0] + 1.0, p[1] + 1.0], [p[0] - 1.0, p[1] + 1.0]];
-    let c = Constraints { exclusion_zones: vec![("quay".into(), zone)], ..Default::default() };
-    for method in [Method::Greedy, Method::Qr, Method::Exchange, Method::Random, Method::Grid] {
+    let zone = vec![
+        [p[0] - 1.0, p[1] - 1.0],
+        [p[0] + 1.0, p[1] - 1.0],
+        [p[0] + 1.0, p[1] + 1.0],
+        [p[0] - 1.0, p[1] + 1.0],
+    ];
+    let c = Constraints {
+        exclusion_zones: vec![("quay".into(), zone)],
+        ..Default::default()
+    };
+    for method in [
+        Method::Greedy,
+        Method::Qr,
+        Method::Exchange,
+        Method::Random,
+        Method::Grid,
+    ] {
         let r = run(&problem, method, Limit::Count(8), c.clone()).unwrap();
-        assert!(r.layout.entries.iter().all(|e| e.candidate_idx != best), "{method:?}");
+        assert!(
+            r.layout.entries.iter().all(|e| e.candidate_idx != best),
+            "{method:?}"
+        );
     }
 }
 
 #[test]
 fn constraint_min_spacing() {
     let problem = lattice_problem();
-    let c = Constraints { min_spacing: 15.0, ..Default::default() };
-    for method in [Method::Greedy, Method::Qr, Method::Exchange, Method::Random, Method::Grid] {
+    let c = Constraints {
+        min_spacing: 15.0,
+        ..Default::default()
+    };
+    for method in [
+        Method::Greedy,
+        Method::Qr,
+        Method::Exchange,
+        Method::Random,
+        Method::Grid,
+    ] {
         let r = run(&problem, method, Limit::Count(5), c.clone()).unwrap();
-        let pos: Vec<[f64; 2]> = r.layout.entries.iter().map(|e| problem.places[e.candidate_idx].position).collect();
+        let pos: Vec<[f64; 2]> = r
+            .layout
+            .entries
+            .iter()
+            .map(|e| problem.places[e.candidate_idx].position)
+            .collect();
         for a in 0..pos.len() {
             for b in a + 1..pos.len() {
                 let d = ((pos[a][0] - pos[b][0]).powi(2) + (pos[a][1] - pos[b][1]).powi(2)).sqrt();
@@ -333,13 +478,24 @@ fn constraint_min_spacing() {
 #[test]
 fn constraint_max_per_zone_and_per_kind() {
     let problem = lattice_problem();
-    let c = Constraints { max_per_zone: Some(2), ..Default::default() };
+    let c = Constraints {
+        max_per_zone: Some(2),
+        ..Default::default()
+    };
     let r = run(&problem, Method::Exchange, Limit::Count(4), c).unwrap();
     for zone in ["west", "east"] {
-        let n = r.layout.entries.iter().filter(|e| problem.places[e.candidate_idx].zone == zone).count();
+        let n = r
+            .layout
+            .entries
+            .iter()
+            .filter(|e| problem.places[e.candidate_idx].zone == zone)
+            .count();
         assert_eq!(n, 2);
     }
-    let c = Constraints { max_per_kind: Some(1), ..Default::default() };
+    let c = Constraints {
+        max_per_kind: Some(1),
+        ..Default::default()
+    };
     let r = run(&problem, Method::Greedy, Limit::Count(2), c).unwrap();
     let kinds: Vec<usize> = r.layout.entries.iter().map(|e| e.kind_idx).collect();
     assert!(kinds.contains(&0) && kinds.contains(&1), "{kinds:?}");
@@ -348,22 +504,58 @@ fn constraint_max_per_zone_and_per_kind() {
 #[test]
 fn constraint_keep_remove_and_one_kind_per_mount() {
     let problem = lattice_problem();
-    let keep = Constraints { keep: vec![(5, 0), (17, 1)], ..Default::default() };
+    let keep = Constraints {
+        keep: vec![(5, 0), (17, 1)],
+        ..Default::default()
+    };
     let r = run(&problem, Method::Greedy, Limit::Count(3), keep).unwrap();
     assert_eq!(r.layout.entries.len(), 5);
     assert!(r.layout.entries[0].kept && r.layout.entries[1].kept && !r.layout.entries[2].kept);
-    assert_eq!((r.layout.entries[0].candidate_idx, r.layout.entries[0].kind_idx), (5, 0));
-    let later: Vec<usize> = r.layout.entries[2..].iter().map(|e| e.candidate_idx).collect();
+    assert_eq!(
+        (
+            r.layout.entries[0].candidate_idx,
+            r.layout.entries[0].kind_idx
+        ),
+        (5, 0)
+    );
+    let later: Vec<usize> = r.layout.entries[2..]
+        .iter()
+        .map(|e| e.candidate_idx)
+        .collect();
     assert!(!later.contains(&5) && !later.contains(&17));
 
-    let free = run(&problem, Method::Greedy, Limit::Count(3), Constraints::default()).unwrap();
-    let removed: Vec<usize> = free.layout.entries.iter().map(|e| e.candidate_idx).collect();
-    let c = Constraints { removed: removed.clone(), ..Default::default() };
+    let free = run(
+        &problem,
+        Method::Greedy,
+        Limit::Count(3),
+        Constraints::default(),
+    )
+    .unwrap();
+    let removed: Vec<usize> = free
+        .layout
+        .entries
+        .iter()
+        .map(|e| e.candidate_idx)
+        .collect();
+    let c = Constraints {
+        removed: removed.clone(),
+        ..Default::default()
+    };
     let r = run(&problem, Method::Greedy, Limit::Count(3), c).unwrap();
-    assert!(r.layout.entries.iter().all(|e| !removed.contains(&e.candidate_idx)));
+    assert!(r
+        .layout
+        .entries
+        .iter()
+        .all(|e| !removed.contains(&e.candidate_idx)));
 
     // Every candidate offers two kinds; 24 sensors must use 24 distinct mounts.
-    let r = run(&problem, Method::Greedy, Limit::Count(24), Constraints::default()).unwrap();
+    let r = run(
+        &problem,
+        Method::Greedy,
+        Limit::Count(24),
+        Constraints::default(),
+    )
+    .unwrap();
     let mut mounts: Vec<usize> = r.layout.entries.iter().map(|e| e.candidate_idx).collect();
     mounts.sort_unstable();
     mounts.dedup();
@@ -373,23 +565,69 @@ fn constraint_keep_remove_and_one_kind_per_mount() {
 #[test]
 fn bad_requests_are_named() {
     let problem = lattice_problem();
-    let err = run(&problem, Method::Greedy, Limit::Count(25), Constraints::default()).unwrap_err();
-    assert!(matches!(err, SelectError::CountTooLarge { requested: 25, n_admissible: 24 }), "{err}");
-    let err = run(&problem, Method::Greedy, Limit::Budget(50.0), Constraints::default()).unwrap_err();
-    assert!(err.to_string().contains("cheapest admissible sensor (100"), "{err}");
+    let err = run(
+        &problem,
+        Method::Greedy,
+        Limit::Count(25),
+        Constraints::default(),
+    )
+    .unwrap_err();
+    assert!(
+        matches!(
+            err,
+            SelectError::CountTooLarge {
+                requested: 25,
+                n_admissible: 24
+            }
+        ),
+        "{err}"
+    );
+    let err = run(
+        &problem,
+        Method::Greedy,
+        Limit::Budget(50.0),
+        Constraints::default(),
+    )
+    .unwrap_err();
+    assert!(
+        err.to_string().contains("cheapest admissible sensor (100"),
+        "{err}"
+    );
     let everywhere = vec![[-5.0, -5.0], [100.0, -5.0], [100.0, 100.0], [-5.0, 100.0]];
-    let c = Constraints { exclusion_zones: vec![("all".into(), everywhere.clone())], ..Default::default() };
+    let c = Constraints {
+        exclusion_zones: vec![("all".into(), everywhere.clone())],
+        ..Default::default()
+    };
     let err = run(&problem, Method::Greedy, Limit::Count(1), c).unwrap_err();
-    assert!(matches!(err, SelectError::NoAdmissibleCandidates { .. }), "{err}");
+    assert!(
+        matches!(err, SelectError::NoAdmissibleCandidates { .. }),
+        "{err}"
+    );
     // A kept sensor with a kind its mount does not take is an error.
-    let c = Constraints { keep: vec![(3, 7)], ..Default::default() };
-    assert!(matches!(run(&problem, Method::Greedy, Limit::Count(1), c), Err(SelectError::BadKeep { .. })));
+    let c = Constraints {
+        keep: vec![(3, 7)],
+        ..Default::default()
+    };
+    assert!(matches!(
+        run(&problem, Method::Greedy, Limit::Count(1), c),
+        Err(SelectError::BadKeep { .. })
+    ));
     // A kept sensor inside an exclusion zone is a warning: it is already there.
     let corner = vec![[-5.0, -5.0], [5.0, -5.0], [5.0, 5.0], [-5.0, 5.0]];
-    let c = Constraints { keep: vec![(0, 0)], exclusion_zones: vec![("corner".into(), corner)], ..Default::default() };
+    let c = Constraints {
+        keep: vec![(0, 0)],
+        exclusion_zones: vec![("corner".into(), corner)],
+        ..Default::default()
+    };
     let r = run(&problem, Method::Greedy, Limit::Count(1), c).unwrap();
     assert!(r.layout.entries[0].kept);
-    assert!(r.warnings.iter().any(|w| w.contains("exclusion zone corner")), "{:?}", r.warnings);
+    assert!(
+        r.warnings
+            .iter()
+            .any(|w| w.contains("exclusion zone corner")),
+        "{:?}",
+        r.warnings
+    );
 }
 
 #[test]
@@ -403,8 +641,19 @@ fn nan_in_modes_is_refused() {
         noise_var: vec![1.0],
         cost: 1.0,
     };
-    let err = Problem::from_blocks(&[block], &Prior::Flat, places(1), vec!["p".into()]).unwrap_err();
-    assert!(matches!(err, SelectError::NonFiniteRows { row: 0, mode: 1, .. }), "{err}");
+    let err =
+        Problem::from_blocks(&[block], &Prior::Flat, places(1), vec!["p".into()]).unwrap_err();
+    assert!(
+        matches!(
+            err,
+            SelectError::NonFiniteRows {
+                row: 0,
+                mode: 1,
+                ..
+            }
+        ),
+        "{err}"
+    );
 }
 
 /// A and E greedy improve their own criterion over the D-greedy layout's value, or match it,
@@ -413,11 +662,22 @@ fn nan_in_modes_is_refused() {
 fn a_and_e_criteria_and_baselines() {
     let problem = lattice_problem();
     for criterion in [Criterion::A, Criterion::E] {
-        let own = rank(&problem, &options(Method::Greedy, criterion, Limit::Count(4))).unwrap();
-        let exch = rank(&problem, &options(Method::Exchange, criterion, Limit::Count(4))).unwrap();
+        let own = rank(
+            &problem,
+            &options(Method::Greedy, criterion, Limit::Count(4)),
+        )
+        .unwrap();
+        let exch = rank(
+            &problem,
+            &options(Method::Exchange, criterion, Limit::Count(4)),
+        )
+        .unwrap();
         let own_v = own.layout.entries.last().unwrap().cumulative_criterion;
         let exch_v = exch.layout.entries.last().unwrap().cumulative_criterion;
-        assert!(criterion.improvement(own_v, exch_v) >= -1e-12, "{criterion:?}: {own_v} -> {exch_v}");
+        assert!(
+            criterion.improvement(own_v, exch_v) >= -1e-12,
+            "{criterion:?}: {own_v} -> {exch_v}"
+        );
         // Every gain is an improvement of the criterion.
         assert!(own.layout.entries.iter().all(|e| e.marginal_gain >= -1e-12));
     }

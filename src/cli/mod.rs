@@ -81,6 +81,7 @@ fn exit_code_for(err: &anyhow::Error) -> u8 {
                 .downcast_ref::<crate::sensors::SensorError>()
                 .is_some()
             || cause.downcast_ref::<BadArgument>().is_some()
+            || cause.downcast_ref::<crate::select::SelectError>().is_some()
             || cause
                 .downcast_ref::<crate::basis::BasisError>()
                 .is_some_and(|e| e.is_bad_input())

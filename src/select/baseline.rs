@@ -29,7 +29,9 @@ pub(crate) fn random_best(
     n_draws: usize,
 ) -> Vec<usize> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let pool: Vec<usize> = (0..problem.n_blocks()).filter(|&b| feas.admissible(b)).collect();
+    let pool: Vec<usize> = (0..problem.n_blocks())
+        .filter(|&b| feas.admissible(b))
+        .collect();
     let (max_count, budget) = match limit {
         Limit::Count(k) => (k, f64::INFINITY),
         Limit::Budget(b) => (usize::MAX, b),
@@ -92,7 +94,9 @@ fn cheapest_block_per_candidate(problem: &Problem, feas: &Feasibility) -> Vec<Op
 /// The hand-laid grid layout of `k` new blocks (see the module text for the rule).
 fn grid_count(problem: &Problem, feas: &Feasibility, k: usize) -> Vec<usize> {
     let cheapest = cheapest_block_per_candidate(problem, feas);
-    let cands: Vec<usize> = (0..problem.places.len()).filter(|&c| cheapest[c].is_some()).collect();
+    let cands: Vec<usize> = (0..problem.places.len())
+        .filter(|&c| cheapest[c].is_some())
+        .collect();
     if cands.is_empty() || k == 0 {
         return Vec::new();
     }
@@ -162,7 +166,10 @@ fn grid_count(problem: &Problem, feas: &Feasibility, k: usize) -> Vec<usize> {
         .min_by(|&a, &b| d2(bpos(picks[a]), centre).total_cmp(&d2(bpos(picks[b]), centre)))
         .unwrap_or(0);
     let mut chosen = vec![picks[first]];
-    let mut min_d: Vec<f64> = picks.iter().map(|&b| d2(bpos(b), bpos(picks[first]))).collect();
+    let mut min_d: Vec<f64> = picks
+        .iter()
+        .map(|&b| d2(bpos(b), bpos(picks[first])))
+        .collect();
     while chosen.len() < k {
         let next = (0..picks.len())
             .max_by(|&a, &b| min_d[a].total_cmp(&min_d[b]).then(b.cmp(&a)))

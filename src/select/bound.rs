@@ -108,7 +108,12 @@ impl Relaxation<'_> {
                 .map(|(i, &v)| (v - tau * weight(i)).clamp(0.0, 1.0))
                 .collect()
         };
-        let used = |z: &[f64]| z.iter().enumerate().map(|(i, v)| v * weight(i)).sum::<f64>();
+        let used = |z: &[f64]| {
+            z.iter()
+                .enumerate()
+                .map(|(i, v)| v * weight(i))
+                .sum::<f64>()
+        };
         let z0 = at(0.0);
         if used(&z0) <= cap {
             return z0;
@@ -194,7 +199,9 @@ pub fn d_upper_bound(problem: &Problem, feas: &Feasibility, limit: Limit) -> Bou
             }
         }
     }
-    let vars: Vec<usize> = (0..problem.n_blocks()).filter(|&b| feas.admissible(b)).collect();
+    let vars: Vec<usize> = (0..problem.n_blocks())
+        .filter(|&b| feas.admissible(b))
+        .collect();
     let relax = Relaxation {
         problem,
         vars,
@@ -207,7 +214,11 @@ pub fn d_upper_bound(problem: &Problem, feas: &Feasibility, limit: Limit) -> Bou
         Limit::Count(k) => vec![(k as f64 / n.max(1) as f64).min(1.0); n],
         Limit::Budget(b) => {
             let total: f64 = (0..n).map(|i| relax.cost(i)).sum();
-            let t = if total > 0.0 { (b / total).min(1.0) } else { 1.0 };
+            let t = if total > 0.0 {
+                (b / total).min(1.0)
+            } else {
+                1.0
+            };
             vec![t; n]
         }
     };
@@ -238,7 +249,11 @@ pub fn d_upper_bound(problem: &Problem, feas: &Feasibility, limit: Limit) -> Bou
         for _ in 0..40 {
             let y: Vec<f64> = z.iter().zip(&g).map(|(zi, gi)| zi + step * gi).collect();
             let trial = relax.project(&y);
-            let ascent: f64 = g.iter().zip(trial.iter().zip(&z)).map(|(gi, (t, zi))| gi * (t - zi)).sum();
+            let ascent: f64 = g
+                .iter()
+                .zip(trial.iter().zip(&z))
+                .map(|(gi, (t, zi))| gi * (t - zi))
+                .sum();
             if let Some((ft, _)) = relax.evaluate(&trial, false) {
                 if ft >= f + 1e-4 * ascent && ascent > 0.0 {
                     z = trial;

@@ -149,7 +149,9 @@ impl<'a> Feasibility<'a> {
                 return Err(SelectError::BadKeep {
                     candidate,
                     kind,
-                    reason: "the position already holds another kept sensor; a mount takes one sensor".into(),
+                    reason:
+                        "the position already holds another kept sensor; a mount takes one sensor"
+                            .into(),
                 });
             }
             if let Some(zone) = excluded_by[c] {
@@ -211,7 +213,9 @@ impl<'a> Feasibility<'a> {
         }
         let place = &self.problem.places[c];
         if let Some(limit) = self.constraints.max_per_zone {
-            if !place.zone.is_empty() && self.zone_count.get(&place.zone).copied().unwrap_or(0) >= limit {
+            if !place.zone.is_empty()
+                && self.zone_count.get(&place.zone).copied().unwrap_or(0) >= limit
+            {
                 return false;
             }
         }
@@ -270,7 +274,14 @@ mod tests {
         assert!(!inside_polygon([3.0, 1.0], &square));
         assert!(!inside_polygon([1.0, -0.5], &square));
         // Concave L-shape: the notch is outside.
-        let ell = [[0.0, 0.0], [2.0, 0.0], [2.0, 1.0], [1.0, 1.0], [1.0, 2.0], [0.0, 2.0]];
+        let ell = [
+            [0.0, 0.0],
+            [2.0, 0.0],
+            [2.0, 1.0],
+            [1.0, 1.0],
+            [1.0, 2.0],
+            [0.0, 2.0],
+        ];
         assert!(inside_polygon([0.5, 1.5], &ell));
         assert!(!inside_polygon([1.5, 1.5], &ell));
     }

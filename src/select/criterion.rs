@@ -201,13 +201,19 @@ impl InfoState {
                 *d -= ui * ui;
             }
         }
-        diag.iter().zip(prior_var).map(|(d, l)| l * d.max(0.0)).sum()
+        diag.iter()
+            .zip(prior_var)
+            .map(|(d, l)| l * d.max(0.0))
+            .sum()
     }
 
     /// The unscaled information `J = G⁻¹ M G⁻¹`, row-major (needs `track_dense`).
     pub fn information(&self, prior_var: &[f64]) -> Vec<f64> {
         let r = self.n_modes;
-        let m = self.info.as_ref().expect("InfoState built with track_dense");
+        let m = self
+            .info
+            .as_ref()
+            .expect("InfoState built with track_dense");
         let mut j = m.clone();
         for a in 0..r {
             for b in 0..r {
@@ -278,7 +284,11 @@ mod tests {
             assert!((state.log_det_scaled() - ld).abs() < 1e-10 * (1.0 + ld.abs()));
             let probe = rows(99, 1, r);
             let want: f64 = (0..r)
-                .map(|i| (0..r).map(|j| probe[i] * p[i * r + j] * probe[j]).sum::<f64>())
+                .map(|i| {
+                    (0..r)
+                        .map(|j| probe[i] * p[i * r + j] * probe[j])
+                        .sum::<f64>()
+                })
                 .sum();
             assert!((state.quad(&probe) - want).abs() < 1e-10 * (1.0 + want));
             let lambda: Vec<f64> = (0..r).map(|i| 1.0 + i as f64).collect();

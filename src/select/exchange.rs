@@ -37,7 +37,13 @@ fn scaled_information(problem: &Problem, blocks: &[usize]) -> Vec<f64> {
 }
 
 /// Improvement of the D or A criterion from swapping `s` out and `c` in, given `y = P bᵀ` rows.
-fn pair_change(problem: &Problem, criterion: Criterion, y: &[f64], s: usize, c: usize) -> Option<f64> {
+fn pair_change(
+    problem: &Problem,
+    criterion: Criterion,
+    y: &[f64],
+    s: usize,
+    c: usize,
+) -> Option<f64> {
     let r = problem.n_modes();
     let rows = &problem.rows;
     let (rc, rs) = (rows.block_range(c), rows.block_range(s));
@@ -116,7 +122,9 @@ pub(crate) fn exchange(
         let value = evaluate_set(problem, &all, criterion);
         let spent: f64 = set.iter().map(|&b| problem.block_cost[b]).sum();
         let m = scaled_information(problem, &all);
-        let Some(p_mat) = spd_inverse(&m, r) else { break };
+        let Some(p_mat) = spd_inverse(&m, r) else {
+            break;
+        };
         // y_i = P b_i for every row (P symmetric, so row-major product is fine).
         let mut y = vec![0.0; problem.rows.n_rows() * r];
         if criterion != Criterion::E {
@@ -145,7 +153,8 @@ pub(crate) fn exchange(
                 if let Some(c) = best_e_block(problem, &state, &candidates) {
                     let mut with_c = base.clone();
                     with_c.push(c);
-                    let gain = criterion.improvement(value, evaluate_set(problem, &with_c, criterion));
+                    let gain =
+                        criterion.improvement(value, evaluate_set(problem, &with_c, criterion));
                     if best.is_none_or(|(bg, _, _)| gain > bg) {
                         best = Some((gain, pos, c));
                     }
@@ -153,7 +162,9 @@ pub(crate) fn exchange(
                 continue;
             }
             for &c in &candidates {
-                let Some(gain) = pair_change(problem, criterion, &y, s, c) else { continue };
+                let Some(gain) = pair_change(problem, criterion, &y, s, c) else {
+                    continue;
+                };
                 if best.is_none_or(|(bg, _, _)| gain > bg) {
                     best = Some((gain, pos, c));
                 }

@@ -54,7 +54,12 @@ fn cost_floor(problem: &Problem) -> f64 {
 }
 
 /// The kept sensors absorbed into a fresh state.
-pub(crate) fn kept_state(problem: &Problem, feas: &Feasibility, start: &[usize], track_dense: bool) -> InfoState {
+pub(crate) fn kept_state(
+    problem: &Problem,
+    feas: &Feasibility,
+    start: &[usize],
+    track_dense: bool,
+) -> InfoState {
     let mut state = InfoState::new(problem.n_modes(), track_dense);
     for &b in feas.kept_blocks.iter().chain(start) {
         state.add_block(problem.rows.block(b));
@@ -129,7 +134,13 @@ impl LazyGains {
 
 /// Lazy greedy on the D gain. `per_cost` ranks by gain per unit cost. Returns the new blocks
 /// in the order chosen.
-fn lazy_greedy_d(problem: &Problem, feas: &Feasibility, start: &[usize], limit: Limit, per_cost: bool) -> Vec<usize> {
+fn lazy_greedy_d(
+    problem: &Problem,
+    feas: &Feasibility,
+    start: &[usize],
+    limit: Limit,
+    per_cost: bool,
+) -> Vec<usize> {
     let mut feas = feas.with_chosen(start);
     let mut state = kept_state(problem, &feas, start, false);
     let mut lazy = LazyGains::new(problem);
@@ -151,7 +162,9 @@ fn lazy_greedy_d(problem: &Problem, feas: &Feasibility, start: &[usize], limit: 
     };
     let mut order = Vec::new();
     while order.len() < max_count {
-        let Some((_, Reverse(b))) = heap.pop() else { break };
+        let Some((_, Reverse(b))) = heap.pop() else {
+            break;
+        };
         if !feas.can_add(b) || problem.block_cost[b] > remaining {
             continue; // constraints and the remaining budget only tighten: drop for good
         }
@@ -180,7 +193,11 @@ fn best_e_addition(
     let r = problem.n_modes();
     let (d, v) = symmetric_eigen(j, r)?;
     let floor = cost_floor(problem);
-    let tol = 1e-9 * d[0].abs().max(d[r - 1].abs() * 1e-12).max(f64::MIN_POSITIVE);
+    let tol = 1e-9
+        * d[0]
+            .abs()
+            .max(d[r - 1].abs() * 1e-12)
+            .max(f64::MIN_POSITIVE);
     let inv_sqrt: Vec<f64> = problem.prior_var.iter().map(|l| 1.0 / l.sqrt()).collect();
     // Upper bound on the new λ_min: Rayleigh quotient at the current minimum eigenvector, and
     // Cauchy interlacing (a rank-p update cannot lift λ_min above the (p+1)-th eigenvalue).
@@ -199,7 +216,11 @@ fn best_e_addition(
                 ub = ub.min(d[p]);
             }
             let ub_gain = (ub - d[0]).max(0.0);
-            let div = if per_cost { problem.block_cost[b].max(floor) } else { 1.0 };
+            let div = if per_cost {
+                problem.block_cost[b].max(floor)
+            } else {
+                1.0
+            };
             (ub_gain / div, b)
         })
         .collect();
@@ -212,7 +233,11 @@ fn best_e_addition(
                 break;
             }
         }
-        let div = if per_cost { problem.block_cost[b].max(floor) } else { 1.0 };
+        let div = if per_cost {
+            problem.block_cost[b].max(floor)
+        } else {
+            1.0
+        };
         let gain = if ub_key * div <= tol {
             0.0
         } else {
@@ -248,7 +273,11 @@ fn best_e_addition(
 }
 
 /// The block of `candidates` that most raises λ_min(J) from `state` (E criterion).
-pub(crate) fn best_e_block(problem: &Problem, state: &InfoState, candidates: &[usize]) -> Option<usize> {
+pub(crate) fn best_e_block(
+    problem: &Problem,
+    state: &InfoState,
+    candidates: &[usize],
+) -> Option<usize> {
     let j = state.information(&problem.prior_var);
     best_e_addition(problem, &j, candidates, state, false)
 }
@@ -290,7 +319,11 @@ fn rescoring_greedy(
                         Criterion::A => state.a_reduction(block, &problem.prior_var),
                         _ => state.d_gain(block),
                     };
-                    let k = if per_cost { gain / problem.block_cost[b].max(floor) } else { gain };
+                    let k = if per_cost {
+                        gain / problem.block_cost[b].max(floor)
+                    } else {
+                        gain
+                    };
                     if best.is_none_or(|(bk, _)| k > bk) {
                         best = Some((k, b));
                     }
@@ -324,7 +357,12 @@ fn plain_greedy(
 /// Greedy order of new blocks (kept sensors excluded) for `criterion` under `limit`.
 /// Under a budget: the best (by the criterion) of cost-benefit greedy, plain greedy within the
 /// budget, and the best single affordable block.
-pub fn greedy_order(problem: &Problem, feas: &Feasibility, criterion: Criterion, limit: Limit) -> Vec<usize> {
+pub fn greedy_order(
+    problem: &Problem,
+    feas: &Feasibility,
+    criterion: Criterion,
+    limit: Limit,
+) -> Vec<usize> {
     greedy_order_from(problem, feas, &[], criterion, limit)
 }
 
@@ -386,7 +424,12 @@ pub fn greedy_order_from(
 
 /// Orders a fixed set of new blocks greedily (for exchange, random and grid layouts), so their
 /// table reads like a ranking: each step adds the member with the largest gain.
-pub(crate) fn order_within(problem: &Problem, feas: &Feasibility, criterion: Criterion, set: &[usize]) -> Vec<usize> {
+pub(crate) fn order_within(
+    problem: &Problem,
+    feas: &Feasibility,
+    criterion: Criterion,
+    set: &[usize],
+) -> Vec<usize> {
     let mut state = kept_state(problem, feas, &[], criterion == Criterion::E);
     let mut left: Vec<usize> = set.to_vec();
     let mut order = Vec::with_capacity(set.len());

@@ -64,7 +64,10 @@ pub enum SelectError {
     #[error("no admissible candidate: all {n_candidates} candidates are removed or lie in an exclusion zone")]
     NoAdmissibleCandidates { n_candidates: usize },
     #[error("--count {requested} is above the {n_admissible} admissible candidate positions (after exclusion zones, removals and kept sensors); ask for at most {n_admissible}")]
-    CountTooLarge { requested: usize, n_admissible: usize },
+    CountTooLarge {
+        requested: usize,
+        n_admissible: usize,
+    },
     #[error("--count must be at least 1, found 0")]
     CountZero,
     #[error("budget {budget} is below the cheapest admissible sensor ({cheapest}, candidate {candidate} with kind {kind}); raise the budget to at least {cheapest}")]

@@ -178,7 +178,10 @@ impl Problem {
         rows.scale_columns(&scale);
         let log_det_prior_inv = -prior_var.iter().map(|v| v.ln()).sum::<f64>();
         for (b, &c) in block_cost.iter().enumerate() {
-            assert!(c.is_finite() && c >= 0.0, "block {b} cost {c} is not a cost");
+            assert!(
+                c.is_finite() && c >= 0.0,
+                "block {b} cost {c} is not a cost"
+            );
         }
         Ok(Problem {
             rows,

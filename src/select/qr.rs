@@ -108,7 +108,9 @@ pub fn lazy_pivoted_qr(
     let mut out = QrOrder::default();
     let mut scratch = vec![0.0; r];
     while out.order.len() < n_pick {
-        let Some((_, Reverse(b))) = heap.pop() else { break };
+        let Some((_, Reverse(b))) = heap.pop() else {
+            break;
+        };
         let n_q = basis.n_q();
         if stamp[b] < n_q {
             let block = rows.block(b);
@@ -154,13 +156,16 @@ mod tests {
     /// Plain (eager) pivoted Gram–Schmidt: the textbook algorithm, every norm every step.
     fn eager(rows: &CandidateRows, n_pick: usize) -> Vec<usize> {
         let r = rows.n_modes();
-        let mut basis = Basis { n_modes: r, q: Vec::new() };
+        let mut basis = Basis {
+            n_modes: r,
+            q: Vec::new(),
+        };
         let mut chosen = vec![false; rows.n_blocks()];
         let mut order = Vec::new();
         for _ in 0..n_pick {
             let mut best = (f64::NEG_INFINITY, usize::MAX);
-            for b in 0..rows.n_blocks() {
-                if chosen[b] {
+            for (b, &taken) in chosen.iter().enumerate() {
+                if taken {
                     continue;
                 }
                 let mut s = 0.0;
@@ -188,7 +193,9 @@ mod tests {
             let r = 7;
             let sizes: Vec<usize> = (0..40).map(|_| rng.random_range(1..=3)).collect();
             let n_rows: usize = sizes.iter().sum();
-            let data: Vec<f64> = (0..n_rows * r).map(|_| rng.random_range(-1.0..1.0)).collect();
+            let data: Vec<f64> = (0..n_rows * r)
+                .map(|_| rng.random_range(-1.0..1.0))
+                .collect();
             let rows = CandidateRows::from_blocks(r, data, &sizes);
             let lazy = lazy_pivoted_qr(&rows, &[], 3, |_| true);
             assert_eq!(lazy.order, eager(&rows, 3), "seed {seed}");

@@ -65,7 +65,12 @@ pub struct Ranking {
 }
 
 /// Marginal gains and cumulative values of the kept blocks followed by `order`.
-pub fn score_order(problem: &Problem, kept: &[usize], order: &[usize], criterion: Criterion) -> Layout {
+pub fn score_order(
+    problem: &Problem,
+    kept: &[usize],
+    order: &[usize],
+    criterion: Criterion,
+) -> Layout {
     let mut state = InfoState::new(problem.n_modes(), criterion == Criterion::E);
     let mut value = state.value(criterion, problem);
     let mut cost = 0.0;
@@ -112,7 +117,11 @@ fn check_request(problem: &Problem, feas: &Feasibility, limit: Limit) -> Result<
         Limit::Budget(b) => {
             let cheapest = (0..problem.n_blocks())
                 .filter(|&i| feas.admissible(i))
-                .min_by(|&x, &y| problem.block_cost[x].total_cmp(&problem.block_cost[y]).then(x.cmp(&y)));
+                .min_by(|&x, &y| {
+                    problem.block_cost[x]
+                        .total_cmp(&problem.block_cost[y])
+                        .then(x.cmp(&y))
+                });
             match cheapest {
                 Some(i) if problem.block_cost[i] > b => {
                     let (candidate, kind) = problem.block_name(i);
@@ -130,7 +139,12 @@ fn check_request(problem: &Problem, feas: &Feasibility, limit: Limit) -> Result<
 }
 
 /// Pivoted QR, continued by greedy once the chosen rows span the mode space.
-fn qr_order(problem: &Problem, feas: &Feasibility, criterion: Criterion, limit: Limit) -> Vec<usize> {
+fn qr_order(
+    problem: &Problem,
+    feas: &Feasibility,
+    criterion: Criterion,
+    limit: Limit,
+) -> Vec<usize> {
     let (n_pick, budget) = match limit {
         Limit::Count(k) => (k, f64::INFINITY),
         Limit::Budget(b) => (usize::MAX, b),
@@ -173,7 +187,14 @@ pub fn rank(problem: &Problem, options: &RankOptions) -> Result<Ranking, SelectE
             order_within(problem, &feas, criterion, &set)
         }
         Method::Random => {
-            let set = random_best(problem, &feas, criterion, limit, options.seed, options.n_random_draws);
+            let set = random_best(
+                problem,
+                &feas,
+                criterion,
+                limit,
+                options.seed,
+                options.n_random_draws,
+            );
             order_within(problem, &feas, criterion, &set)
         }
         Method::Grid => {

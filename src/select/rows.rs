@@ -29,7 +29,10 @@ impl CandidateRows {
     #[track_caller]
     pub fn from_single_rows(n_modes: usize, data: Vec<f64>) -> Self {
         assert!(n_modes > 0, "CandidateRows needs at least one mode");
-        assert!(data.len() % n_modes == 0, "row data is not a multiple of n_modes");
+        assert!(
+            data.len().is_multiple_of(n_modes),
+            "row data is not a multiple of n_modes"
+        );
         let n_rows = data.len() / n_modes;
         CandidateRows {
             n_modes,
