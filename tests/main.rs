@@ -6,3 +6,4 @@ mod basis;
 mod common;
 mod select;
 mod sensors;
+mod site_load;

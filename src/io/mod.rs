@@ -13,11 +13,18 @@
 
 pub mod atomic;
 pub mod basis_files;
+pub mod csv_in;
 pub mod error;
+pub mod geometry;
+pub mod keys;
 pub mod npy;
 pub mod site;
+mod site_flow;
+mod site_load;
+mod site_mounts;
 pub mod snapshots;
 pub mod table;
+pub mod zones;
 
 pub use error::IoError;
 pub use npy::{
@@ -25,4 +32,6 @@ pub use npy::{
     NpySnapshots,
 };
 pub use site::*;
+pub use site_flow::{open_snapshots, read_snapshot_csv};
+pub use site_load::load_site;
 pub use snapshots::{InMemorySnapshots, SnapshotSource};

@@ -97,6 +97,9 @@ pub struct BasisFiles {
     pub modes: PathBuf,
     pub mean: PathBuf,
     pub energies: PathBuf,
+    /// Time between the snapshots the basis came from, seconds, > 0, when `[basis]` gives
+    /// it (twin experiments need it).
+    pub dt: Option<f64>,
 }
 
 /// How a sensor kind reads the field.
