@@ -47,6 +47,7 @@ fn grid_site(plane: Plane, nx: usize, ny: usize, spacing: f64, channels: Vec<Cha
             modes: "modes.npy".into(),
             mean: "mean.npy".into(),
             energies: "energies.csv".into(),
+            dt: None,
         }),
         kinds: Vec::new(),
         candidates: Vec::new(),
