@@ -95,7 +95,6 @@ pub fn write_basis_files(
         modes: dir.join("modes.npy"),
         mean: dir.join("mean.npy"),
         energies: dir.join("energies.csv"),
-        dt: None,
     };
 
     let mut shape = vec![modes.ncols()];
