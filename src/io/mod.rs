@@ -17,6 +17,7 @@ pub mod csv_in;
 pub mod error;
 pub mod geometry;
 pub mod keys;
+pub mod layout_file;
 pub mod npy;
 pub mod site;
 mod site_flow;
@@ -27,6 +28,7 @@ pub mod table;
 pub mod zones;
 
 pub use error::IoError;
+pub use layout_file::{read_layout_csv, write_layout_csv, LayoutRow, LAYOUT_COLUMNS};
 pub use npy::{
     check_shape, read_npy_f64, read_npy_header, write_npy_f32, write_npy_f64, NpyDtype, NpyHeader,
     NpySnapshots,
