@@ -7,3 +7,4 @@ mod common;
 mod select;
 mod sensors;
 mod site_load;
+mod twin;

@@ -1,0 +1,643 @@
+//! Monte Carlo scoring of one layout: [`prepare`] does the per-layout work once (time split,
+//! model fit, row-major copies of the truth), [`run_monte_carlo`] builds the shared gains for a
+//! setting and runs R independent twin experiments in parallel with rayon.
+//!
+//! Determinism: run `i` draws from ChaCha20 generators seeded by a splitmix64 mix of (master
+//! seed, FNV-1a hash of the layout id, setting id) with stream `4 i + purpose` (background,
+//! readings, ensemble), so a run's numbers do not depend on which thread ran it; per-run
+//! results are collected in run order and reduced sequentially, so summaries are bit-identical
+//! for any thread count. A run that diverges reports the step and reason and is left out of
+//! the summaries (counted in `n_diverged`).
+
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+use faer::Mat;
+use rand::SeedableRng;
+use rand_chacha::ChaCha20Rng;
+use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
+
+use super::dense::row_major;
+use super::enkf::{run_enkf, spread_trace, EnkfSettings};
+use super::kalman::{
+    kalman_gains, oi_gain, run_with_gains, static_gains, Divergence, GainSequence, NoisyReadings,
+};
+use super::metrics::{field_rmse, Summary};
+use super::nudge::{nudging_gain, tune_strength};
+use super::schedule::{Schedule, SensorRows};
+use super::{
+    FilterKind, ModelSettings, NudgeGain, ReducedModel, RunSettings, TimeSplit, TwinError,
+};
+
+/// Plain-matrix inputs of a twin experiment for one layout.
+#[derive(Debug, Clone)]
+pub struct TwinCase {
+    /// Modal coefficients of every snapshot, `n_snapshots × n_modes` (truth projection).
+    pub coeffs: Mat<f64>,
+    /// Weighted squared truncation residual `‖x_t − mean − Φ a_t‖²_W` per snapshot.
+    pub residual_sq: Vec<f64>,
+    /// Noise-free readings of the full truth field, row-major `n_snapshots × n_rows`.
+    pub truth_readings: Vec<f64>,
+    pub rows: SensorRows,
+    /// POD energy (coefficient variance) of each kept mode.
+    pub energies: Vec<f64>,
+    /// `Σ_p w_p · n_channels`, the RMSE normaliser.
+    pub field_norm: f64,
+    /// Snapshot time step, seconds.
+    pub dt_s: f64,
+}
+
+impl TwinCase {
+    pub fn n_snapshots(&self) -> usize {
+        self.coeffs.nrows()
+    }
+
+    pub fn n_modes(&self) -> usize {
+        self.coeffs.ncols()
+    }
+}
+
+/// Per-layout work done once: the split, the model and flat copies for the run loops.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    pub case: TwinCase,
+    pub split: TimeSplit,
+    pub model: ReducedModel,
+    pub layout_id: String,
+    layout_hash: u64,
+    h_rm: Vec<f64>,
+    coeffs_rm: Vec<f64>,
+}
+
+/// Splits the record and fits the model of `settings` on the training span.
+pub fn prepare(
+    case: TwinCase,
+    layout_id: &str,
+    settings: &ModelSettings,
+) -> Result<Prepared, TwinError> {
+    let split = TimeSplit::new(case.n_snapshots(), settings.train_fraction, case.n_modes())?;
+    let model = ReducedModel::fit(case.coeffs.as_ref().subrows(0, split.n_train), settings)?;
+    Ok(prepare_with_model(case, layout_id, split, model))
+}
+
+/// As [`prepare`] with a model fitted elsewhere (shared by the layouts of a sweep).
+#[track_caller]
+pub fn prepare_with_model(
+    case: TwinCase,
+    layout_id: &str,
+    split: TimeSplit,
+    model: ReducedModel,
+) -> Prepared {
+    assert_eq!(split.n_train + split.n_test, case.n_snapshots());
+    assert_eq!(model.n_modes, case.n_modes());
+    assert_eq!(
+        case.truth_readings.len(),
+        case.n_snapshots() * case.rows.n_rows()
+    );
+    assert_eq!(case.residual_sq.len(), case.n_snapshots());
+    let h_rm = row_major(case.rows.h.as_ref());
+    let coeffs_rm = row_major(case.coeffs.as_ref());
+    Prepared {
+        layout_hash: fnv1a(layout_id.as_bytes()),
+        layout_id: layout_id.to_string(),
+        case,
+        split,
+        model,
+        h_rm,
+        coeffs_rm,
+    }
+}
+
+/// What one run found.
+#[derive(Debug, Clone)]
+pub struct RunOutcome {
+    pub run_idx: usize,
+    /// Field RMSE of the filter at each test step (NaN after a divergence).
+    pub rmse: Vec<f64>,
+    /// Field RMSE of the free run from the same background.
+    pub free_rmse: Vec<f64>,
+    /// Modal part of the error only, `sqrt(‖a − â‖² / norm)`, to set beside the spread.
+    pub modal_rmse: Vec<f64>,
+    /// `sqrt(tr P / norm)` of the filter's own covariance (Kalman, EnKF), NaN otherwise.
+    pub spread: Vec<f64>,
+    pub mean_rmse: f64,
+    pub final_rmse: f64,
+    pub free_mean_rmse: f64,
+    /// `mean_rmse / free_mean_rmse`.
+    pub ratio_to_free: f64,
+    pub mean_spread: f64,
+    pub mean_modal_rmse: f64,
+    pub divergence: Option<Divergence>,
+}
+
+/// Mean and spread over the runs at one test step.
+#[derive(Debug, Clone, Copy)]
+pub struct StepStats {
+    pub step: usize,
+    /// Time since the start of the test span, seconds.
+    pub time_s: f64,
+    pub mean_rmse: f64,
+    pub std_rmse: f64,
+    pub free_mean_rmse: f64,
+    pub free_std_rmse: f64,
+    pub mean_modal_rmse: f64,
+    pub mean_spread: f64,
+    /// `sqrt(residual_sq / norm)`: the floor no filter on this basis can beat.
+    pub truncation_rmse: f64,
+    /// Runs that had not diverged at this step.
+    pub n_runs_ok: usize,
+}
+
+/// The score of one layout under one setting.
+#[derive(Debug, Clone)]
+pub struct ScoreResult {
+    pub layout_id: String,
+    pub settings: RunSettings,
+    pub model_report: super::ModelReport,
+    pub split: TimeSplit,
+    pub n_rows: usize,
+    /// Steps between readings of each sensor row.
+    pub every_row: Vec<usize>,
+    /// Nudging strength used (set or tuned), for the nudge filter.
+    pub nudge_strength: Option<f64>,
+    /// Per-mode standard deviation of the background perturbation, coefficient units.
+    pub background_modal_sd: f64,
+    pub curves: Vec<StepStats>,
+    pub runs: Vec<RunOutcome>,
+    pub n_diverged: usize,
+    pub mean_rmse: Summary,
+    pub final_rmse: Summary,
+    pub free_mean_rmse: Summary,
+    pub ratio_to_free: Summary,
+    pub mean_spread: Summary,
+    /// Time-mean truncation floor over the test span.
+    pub truncation_rmse: f64,
+}
+
+/// 64-bit FNV-1a (Fowler–Noll–Vo), a fixed hash that does not change between Rust versions.
+pub fn fnv1a(bytes: &[u8]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    h
+}
+
+/// splitmix64 finaliser (Steele, Lea & Flood 2014), to mix seed parts.
+fn mix(mut z: u64) -> u64 {
+    z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+const STREAM_BACKGROUND: u64 = 0;
+const STREAM_READINGS: u64 = 1;
+const STREAM_ENSEMBLE: u64 = 2;
+
+/// The generator for `purpose` of run `run_idx`.
+pub fn run_rng(
+    seed: u64,
+    layout_hash: u64,
+    setting_id: u64,
+    run_idx: u64,
+    purpose: u64,
+) -> ChaCha20Rng {
+    let key = mix(mix(mix(seed) ^ layout_hash) ^ setting_id);
+    let mut rng = ChaCha20Rng::seed_from_u64(key);
+    rng.set_stream(run_idx.wrapping_mul(4).wrapping_add(purpose));
+    rng
+}
+
+/// A contiguous span of the record (training or test) as the run loops see it.
+struct Span<'a> {
+    coeffs_rm: &'a [f64],
+    residual_sq: &'a [f64],
+    readings: &'a [f64],
+    n_steps: usize,
+}
+
+/// Everything shared by the runs of one setting.
+struct Shared<'a> {
+    prep: &'a Prepared,
+    settings: &'a RunSettings,
+    schedule: Schedule,
+    noise_sd: Vec<f64>,
+    noise_var: Vec<f64>,
+    gains: Option<GainSequence>,
+    background_sd: f64,
+}
+
+impl Prepared {
+    fn span(&self, start: usize, n_steps: usize) -> Span<'_> {
+        let r = self.case.n_modes();
+        let p = self.case.rows.n_rows();
+        Span {
+            coeffs_rm: &self.coeffs_rm[start * r..(start + n_steps) * r],
+            residual_sq: &self.case.residual_sq[start..start + n_steps],
+            readings: &self.case.truth_readings[start * p..(start + n_steps) * p],
+            n_steps,
+        }
+    }
+
+    fn test_span(&self) -> Span<'_> {
+        self.span(self.split.n_train, self.split.n_test)
+    }
+}
+
+/// Runs `settings.n_runs` twin experiments of the prepared layout; `progress(done, total)` is
+/// called after each finished run (from rayon's threads).
+pub fn run_monte_carlo(
+    prep: &Prepared,
+    settings: &RunSettings,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<ScoreResult, TwinError> {
+    if settings.n_runs == 0 {
+        return Err(TwinError::BadSetting {
+            name: "runs",
+            message: "found 0, expected at least 1 Monte Carlo run".into(),
+        });
+    }
+    if settings.filter == FilterKind::Enkf && settings.n_ensemble < 2 {
+        return Err(TwinError::BadSetting {
+            name: "ensemble",
+            message: format!("found {}, expected at least 2 members", settings.n_ensemble),
+        });
+    }
+    if settings.filter == FilterKind::Kalman && prep.model.f.is_some() {
+        return Err(TwinError::BadSetting {
+            name: "model",
+            message: "the Kalman filter needs the linear model; use the enkf filter for the quadratic model".into(),
+        });
+    }
+    let case = &prep.case;
+    let n_modes = case.n_modes();
+    let schedule = Schedule::new(&case.rows, case.dt_s, prep.split.n_test, settings.every)?;
+    let noise_sd: Vec<f64> = case
+        .rows
+        .noise_sd
+        .iter()
+        .map(|s| s * settings.noise_scale)
+        .collect();
+    let noise_var: Vec<f64> = noise_sd.iter().map(|s| s * s).collect();
+    // Background: δ ~ N(0, s² I) in modal coordinates gives E‖Φδ‖²_W = r s², so a field RMSE
+    // of σ_b needs s = σ_b · sqrt(Σ_p w_p · n_channels / r).
+    let background_sd = settings.background_sd * (case.field_norm / n_modes as f64).sqrt();
+    let mut nudge_strength = None;
+    let gains = match settings.filter {
+        FilterKind::Kalman => {
+            let p0 =
+                Mat::<f64>::identity(n_modes, n_modes) * faer::Scale(background_sd * background_sd);
+            Some(kalman_gains(
+                &prep.model,
+                case.rows.h.as_ref(),
+                &noise_var,
+                &schedule,
+                p0.as_ref(),
+                false,
+            ))
+        }
+        FilterKind::Oi => {
+            let b = Mat::from_fn(n_modes, n_modes, |i, j| {
+                if i == j {
+                    settings.oi_scale * case.energies[i]
+                } else {
+                    0.0
+                }
+            });
+            Some(static_gains(n_modes, &schedule, |rows| {
+                oi_gain(b.as_ref(), case.rows.h.as_ref(), &noise_var, rows)
+            }))
+        }
+        FilterKind::Nudge => {
+            let strength = match settings.nudge_gain {
+                NudgeGain::Fixed(g) => g,
+                NudgeGain::Tuned => {
+                    tune_nudging(prep, settings, &noise_sd, &noise_var, background_sd)?
+                }
+            };
+            nudge_strength = Some(strength);
+            Some(static_gains(n_modes, &schedule, |rows| {
+                nudging_gain(case.rows.h.as_ref(), &noise_var, rows, strength)
+            }))
+        }
+        FilterKind::Enkf | FilterKind::Free => None,
+    };
+    let shared = Shared {
+        prep,
+        settings,
+        schedule,
+        noise_sd,
+        noise_var,
+        gains,
+        background_sd,
+    };
+
+    let done = AtomicUsize::new(0);
+    let n_runs = settings.n_runs;
+    let runs: Vec<RunOutcome> = (0..n_runs)
+        .into_par_iter()
+        .map(|run_idx| {
+            let outcome = one_run(&shared, &prep.test_span(), run_idx);
+            progress(done.fetch_add(1, Ordering::Relaxed) + 1, n_runs);
+            outcome
+        })
+        .collect();
+    Ok(summarise(&shared, runs, nudge_strength))
+}
+
+/// Field RMSE of an estimate at `step` of `span`.
+fn step_rmse(span: &Span<'_>, step: usize, estimate: &[f64], field_norm: f64) -> (f64, f64) {
+    let r = estimate.len();
+    let truth = &span.coeffs_rm[step * r..(step + 1) * r];
+    let modal: f64 = truth
+        .iter()
+        .zip(estimate)
+        .map(|(a, b)| (a - b) * (a - b))
+        .sum();
+    (
+        field_rmse(modal, span.residual_sq[step], field_norm),
+        (modal / field_norm).sqrt(),
+    )
+}
+
+fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut ChaCha20Rng) -> Vec<f64> {
+    let r = shared.prep.case.n_modes();
+    (0..r)
+        .map(|j| {
+            span.coeffs_rm[j]
+                + shared.background_sd
+                    * <StandardNormal as Distribution<f64>>::sample(&StandardNormal, rng)
+        })
+        .collect::<Vec<f64>>()
+}
+
+fn one_run(shared: &Shared<'_>, span: &Span<'_>, run_idx: usize) -> RunOutcome {
+    let prep = shared.prep;
+    let s = shared.settings;
+    let norm = prep.case.field_norm;
+    let n_steps = span.n_steps;
+    let rng_for = |purpose| {
+        run_rng(
+            s.seed,
+            prep.layout_hash,
+            s.setting_id,
+            run_idx as u64,
+            purpose,
+        )
+    };
+    let a0 = background(shared, span, &mut rng_for(STREAM_BACKGROUND));
+
+    let free_rmse = free_run(&prep.model, span, &a0, norm);
+    let mut rmse = vec![f64::NAN; n_steps];
+    let mut modal_rmse = vec![f64::NAN; n_steps];
+    let mut spread = vec![f64::NAN; n_steps];
+    let mut readings = NoisyReadings {
+        truth: span.readings,
+        n_rows: prep.case.rows.n_rows(),
+        noise_sd: &shared.noise_sd,
+        rng: rng_for(STREAM_READINGS),
+    };
+    let result = match (s.filter, &shared.gains) {
+        (FilterKind::Free, _) => {
+            rmse.copy_from_slice(&free_rmse);
+            let mut state = a0.clone();
+            let mut next = vec![0.0; a0.len()];
+            for (step, m) in modal_rmse.iter_mut().enumerate() {
+                if step > 0 {
+                    prep.model.step(&state, &mut next);
+                    std::mem::swap(&mut state, &mut next);
+                }
+                *m = step_rmse(span, step, &state, norm).1;
+            }
+            Ok(())
+        }
+        (FilterKind::Enkf, _) => {
+            let enkf = EnkfSettings {
+                n_ensemble: s.n_ensemble,
+                inflation: s.inflation,
+                initial_sd: shared.background_sd,
+            };
+            let mut member_rng = rng_for(STREAM_ENSEMBLE);
+            run_enkf(
+                &prep.model,
+                &prep.h_rm,
+                &prep.case.rows.offset,
+                &shared.noise_var,
+                &shared.schedule,
+                &enkf,
+                &mut readings,
+                &mut member_rng,
+                &a0,
+                |step, mean, members| {
+                    (rmse[step], modal_rmse[step]) = step_rmse(span, step, mean, norm);
+                    spread[step] = (spread_trace(members, mean) / norm).sqrt();
+                },
+            )
+        }
+        (_, Some(gains)) => run_with_gains(
+            &prep.model,
+            &prep.h_rm,
+            &prep.case.rows.offset,
+            &shared.schedule,
+            gains,
+            &mut readings,
+            &a0,
+            |step, estimate| {
+                (rmse[step], modal_rmse[step]) = step_rmse(span, step, estimate, norm);
+                if let Some(tr) = &gains.posterior_trace {
+                    spread[step] = (tr[step] / norm).sqrt();
+                }
+            },
+        ),
+        (_, None) => unreachable!("gain filters always have gains"),
+    };
+    let divergence = result.err();
+    let time_mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let (mean_rmse, final_rmse) = if divergence.is_some() {
+        (f64::NAN, f64::NAN)
+    } else {
+        (time_mean(&rmse), rmse[n_steps - 1])
+    };
+    let free_mean_rmse = time_mean(&free_rmse);
+    RunOutcome {
+        run_idx,
+        mean_spread: if divergence.is_some() {
+            f64::NAN
+        } else {
+            time_mean(&spread)
+        },
+        mean_modal_rmse: if divergence.is_some() {
+            f64::NAN
+        } else {
+            time_mean(&modal_rmse)
+        },
+        rmse,
+        free_rmse,
+        modal_rmse,
+        spread,
+        mean_rmse,
+        final_rmse,
+        free_mean_rmse,
+        ratio_to_free: mean_rmse / free_mean_rmse,
+        divergence,
+    }
+}
+
+/// Field RMSE of the model run without readings from `a0` (NaN once it stops being finite).
+fn free_run(model: &ReducedModel, span: &Span<'_>, a0: &[f64], norm: f64) -> Vec<f64> {
+    let mut state = a0.to_vec();
+    let mut next = vec![0.0; a0.len()];
+    let mut quad = vec![0.0; super::model::n_quadratic(a0.len())];
+    (0..span.n_steps)
+        .map(|step| {
+            if step > 0 {
+                model.step_with(&state, &mut quad, &mut next);
+                std::mem::swap(&mut state, &mut next);
+            }
+            let e = step_rmse(span, step, &state, norm).0;
+            if e.is_finite() {
+                e
+            } else {
+                f64::NAN
+            }
+        })
+        .collect()
+}
+
+/// Nudging strength minimising the time-mean RMSE of one nudged run on the training span
+/// (fixed streams, so the objective is a deterministic function of the strength).
+fn tune_nudging(
+    prep: &Prepared,
+    settings: &RunSettings,
+    noise_sd: &[f64],
+    noise_var: &[f64],
+    background_sd: f64,
+) -> Result<f64, TwinError> {
+    let span = prep.span(0, prep.split.n_train);
+    let schedule = Schedule::new(
+        &prep.case.rows,
+        prep.case.dt_s,
+        span.n_steps,
+        settings.every,
+    )?;
+    let h = prep.case.rows.h.as_ref();
+    let tuning_run = u64::MAX / 8; // a stream no scoring run uses
+    let objective = |strength: f64| -> f64 {
+        let gains = static_gains(prep.case.n_modes(), &schedule, |rows| {
+            nudging_gain(h, noise_var, rows, strength)
+        });
+        let mut bg_rng = run_rng(
+            settings.seed,
+            prep.layout_hash,
+            settings.setting_id,
+            tuning_run,
+            STREAM_BACKGROUND,
+        );
+        let a0: Vec<f64> = (0..prep.case.n_modes())
+            .map(|j| {
+                span.coeffs_rm[j]
+                    + background_sd
+                        * <StandardNormal as Distribution<f64>>::sample(
+                            &StandardNormal,
+                            &mut bg_rng,
+                        )
+            })
+            .collect();
+        let mut readings = NoisyReadings {
+            truth: span.readings,
+            n_rows: prep.case.rows.n_rows(),
+            noise_sd,
+            rng: run_rng(
+                settings.seed,
+                prep.layout_hash,
+                settings.setting_id,
+                tuning_run,
+                STREAM_READINGS,
+            ),
+        };
+        let mut sum = 0.0;
+        let ok = run_with_gains(
+            &prep.model,
+            &prep.h_rm,
+            &prep.case.rows.offset,
+            &schedule,
+            &gains,
+            &mut readings,
+            &a0,
+            |step, est| {
+                sum += step_rmse(&span, step, est, prep.case.field_norm).0;
+            },
+        );
+        if ok.is_ok() {
+            sum / span.n_steps as f64
+        } else {
+            f64::INFINITY
+        }
+    };
+    tune_strength(&objective)
+}
+
+fn summarise(
+    shared: &Shared<'_>,
+    runs: Vec<RunOutcome>,
+    nudge_strength: Option<f64>,
+) -> ScoreResult {
+    let prep = shared.prep;
+    let span = prep.test_span();
+    let n_steps = span.n_steps;
+    let norm = prep.case.field_norm;
+    let ok: Vec<&RunOutcome> = runs.iter().filter(|r| r.divergence.is_none()).collect();
+    let curves = (0..n_steps)
+        .map(|step| {
+            let at = |f: &dyn Fn(&RunOutcome) -> f64| -> Vec<f64> {
+                runs.iter().map(f).filter(|v| v.is_finite()).collect()
+            };
+            let rmse = at(&|r| r.rmse[step]);
+            let free = at(&|r| r.free_rmse[step]);
+            let modal = at(&|r| r.modal_rmse[step]);
+            let spread = at(&|r| r.spread[step]);
+            let (m, sd) = mean_std(&rmse);
+            let (fm, fsd) = mean_std(&free);
+            StepStats {
+                step,
+                time_s: step as f64 * prep.case.dt_s,
+                mean_rmse: m,
+                std_rmse: sd,
+                free_mean_rmse: fm,
+                free_std_rmse: fsd,
+                mean_modal_rmse: mean_std(&modal).0,
+                mean_spread: mean_std(&spread).0,
+                truncation_rmse: (span.residual_sq[step] / norm).sqrt(),
+                n_runs_ok: rmse.len(),
+            }
+        })
+        .collect::<Vec<_>>();
+    let pick = |f: &dyn Fn(&RunOutcome) -> f64| -> Vec<f64> { ok.iter().map(|r| f(r)).collect() };
+    let truncation_rmse = curves.iter().map(|c| c.truncation_rmse).sum::<f64>() / n_steps as f64;
+    ScoreResult {
+        layout_id: prep.layout_id.clone(),
+        settings: shared.settings.clone(),
+        model_report: prep.model.report.clone(),
+        split: prep.split,
+        n_rows: prep.case.rows.n_rows(),
+        every_row: shared.schedule.every_row.clone(),
+        nudge_strength,
+        background_modal_sd: shared.background_sd,
+        curves,
+        n_diverged: runs.len() - ok.len(),
+        mean_rmse: Summary::of(&pick(&|r| r.mean_rmse)),
+        final_rmse: Summary::of(&pick(&|r| r.final_rmse)),
+        free_mean_rmse: Summary::of(&runs.iter().map(|r| r.free_mean_rmse).collect::<Vec<_>>()),
+        ratio_to_free: Summary::of(&pick(&|r| r.ratio_to_free)),
+        mean_spread: Summary::of(&pick(&|r| r.mean_spread)),
+        truncation_rmse,
+        runs,
+    }
+}
+
+fn mean_std(v: &[f64]) -> (f64, f64) {
+    let s = Summary::of(v);
+    (s.mean, s.std)
+}
