@@ -4,6 +4,7 @@
 
 mod basis;
 mod common;
+mod render;
 mod select;
 mod sensors;
 mod site_load;

@@ -1,0 +1,352 @@
+//! The generic "metric against setting, with a band" chart: error against time (free run
+//! against layouts), error against sensor count per method, noise-multiplier and
+//! sampling-interval curves. Each [`Series`] is a mean line with a shaded band between `lo`
+//! and `hi` (for instance mean ± one standard deviation over Monte Carlo runs), drawn with its
+//! own colour and marker; baselines are dashed slate. Optional horizontal [`RefLine`]s mark a
+//! target. The legend sits in rows under the chart, so it never covers data.
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+use super::figure::{self, DrawResult, Figure, LegendGlyph, LABEL_PX, SMALL_PX, TICK_PX};
+use super::palette::{SeriesStyle, HIGHLIGHT, INK, INK_SOFT, PAPER, RULE};
+
+/// One curve with its band. `x`, `mean`, `lo` and `hi` have equal lengths; `lo ≤ mean ≤ hi`
+/// is not required (a band may be one-sided), but all must be finite to be drawn.
+#[derive(Debug, Clone)]
+pub struct Series {
+    pub label: String,
+    pub x: Vec<f64>,
+    pub mean: Vec<f64>,
+    pub lo: Vec<f64>,
+    pub hi: Vec<f64>,
+    /// `None`: the next palette style in order; baselines use [`SeriesStyle::baseline`].
+    pub style: Option<SeriesStyle>,
+}
+
+impl Series {
+    pub fn new(
+        label: impl Into<String>,
+        x: Vec<f64>,
+        mean: Vec<f64>,
+        lo: Vec<f64>,
+        hi: Vec<f64>,
+    ) -> Self {
+        let s = Series {
+            label: label.into(),
+            x,
+            mean,
+            lo,
+            hi,
+            style: None,
+        };
+        s.check();
+        s
+    }
+
+    /// A series from mean and standard deviation: band `mean ± sd`.
+    pub fn with_sd(label: impl Into<String>, x: Vec<f64>, mean: Vec<f64>, sd: &[f64]) -> Self {
+        let lo = mean.iter().zip(sd).map(|(m, s)| m - s).collect();
+        let hi = mean.iter().zip(sd).map(|(m, s)| m + s).collect();
+        Series::new(label, x, mean, lo, hi)
+    }
+
+    pub fn styled(mut self, style: SeriesStyle) -> Self {
+        self.style = Some(style);
+        self
+    }
+
+    #[track_caller]
+    fn check(&self) {
+        let n = self.x.len();
+        assert!(
+            self.mean.len() == n && self.lo.len() == n && self.hi.len() == n,
+            "series {}: x, mean, lo, hi lengths differ",
+            self.label
+        );
+    }
+}
+
+/// A labelled horizontal line (target error, bound).
+#[derive(Debug, Clone)]
+pub struct RefLine {
+    pub value: f64,
+    pub label: String,
+}
+
+/// A chart of series against a setting.
+#[derive(Debug, Clone)]
+pub struct CurveChart {
+    pub title: String,
+    /// Axis descriptions with units, e.g. "time (s)", "field RMSE (m/s)".
+    pub x_label: String,
+    pub y_label: String,
+    pub series: Vec<Series>,
+    pub ref_lines: Vec<RefLine>,
+    pub log_x: bool,
+    pub log_y: bool,
+    /// Start the y axis at zero (for errors) instead of at the data minimum.
+    pub y_from_zero: bool,
+    pub width: u32,
+    /// Height of the plotting area, px.
+    pub plot_height: u32,
+}
+
+impl CurveChart {
+    pub fn new(
+        title: impl Into<String>,
+        x_label: impl Into<String>,
+        y_label: impl Into<String>,
+    ) -> Self {
+        CurveChart {
+            title: title.into(),
+            x_label: x_label.into(),
+            y_label: y_label.into(),
+            series: Vec::new(),
+            ref_lines: Vec::new(),
+            log_x: false,
+            log_y: false,
+            y_from_zero: true,
+            width: 880,
+            plot_height: 380,
+        }
+    }
+
+    fn styles(&self) -> Vec<SeriesStyle> {
+        let mut next = 0;
+        self.series
+            .iter()
+            .map(|s| {
+                s.style.unwrap_or_else(|| {
+                    let st = SeriesStyle::nth(next);
+                    next += 1;
+                    st
+                })
+            })
+            .collect()
+    }
+
+    fn legend(&self) -> Vec<(LegendGlyph, String)> {
+        let mut entries: Vec<(LegendGlyph, String)> = self
+            .series
+            .iter()
+            .zip(self.styles())
+            .map(|(s, st)| (LegendGlyph::Series(st), s.label.clone()))
+            .collect();
+        for r in &self.ref_lines {
+            entries.push((
+                LegendGlyph::Line {
+                    colour: HIGHLIGHT,
+                    dashed: true,
+                },
+                r.label.clone(),
+            ));
+        }
+        entries
+    }
+
+    fn ranges(&self) -> ((f64, f64), (f64, f64)) {
+        let usable = |v: f64, log: bool| v.is_finite() && (!log || v > 0.0);
+        let (mut x0, mut x1) = (f64::INFINITY, f64::NEG_INFINITY);
+        let (mut y0, mut y1) = (f64::INFINITY, f64::NEG_INFINITY);
+        for s in &self.series {
+            for k in 0..s.x.len() {
+                if usable(s.x[k], self.log_x) {
+                    x0 = x0.min(s.x[k]);
+                    x1 = x1.max(s.x[k]);
+                }
+                for v in [s.mean[k], s.lo[k], s.hi[k]] {
+                    if usable(v, self.log_y) {
+                        y0 = y0.min(v);
+                        y1 = y1.max(v);
+                    }
+                }
+            }
+        }
+        for r in &self.ref_lines {
+            if usable(r.value, self.log_y) {
+                y0 = y0.min(r.value);
+                y1 = y1.max(r.value);
+            }
+        }
+        if !x0.is_finite() {
+            (x0, x1) = (0.0, 1.0);
+        }
+        if !y0.is_finite() {
+            (y0, y1) = (0.0, 1.0);
+        }
+        if x1 <= x0 {
+            (x0, x1) = if self.log_x {
+                (x0 / 2.0, x0 * 2.0)
+            } else {
+                (x0 - 0.5, x0 + 0.5)
+            };
+        }
+        if y1 <= y0 {
+            (y0, y1) = if self.log_y {
+                (y0 / 2.0, y0 * 2.0)
+            } else {
+                (y0 - 0.5, y1 + 0.5)
+            };
+        }
+        if self.log_y {
+            (y0, y1) = (y0 / 1.15, y1 * 1.15);
+        } else {
+            let pad = 0.06 * (y1 - y0);
+            y0 = if self.y_from_zero && y0 >= 0.0 {
+                0.0
+            } else {
+                y0 - pad
+            };
+            y1 += pad;
+        }
+        if !self.log_x {
+            let pad = 0.02 * (x1 - x0);
+            (x0, x1) = (x0 - pad, x1 + pad);
+        } else {
+            (x0, x1) = (x0 / 1.08, x1 * 1.08);
+        }
+        ((x0, x1), (y0, y1))
+    }
+}
+
+const TITLE_H: u32 = 40;
+const MARGIN: u32 = 14;
+const Y_LABEL_W: u32 = 78;
+const X_LABEL_H: u32 = 52;
+
+impl Figure for CurveChart {
+    fn size(&self) -> (u32, u32) {
+        // Legend height depends on text widths; reserve generously by entry count.
+        let rows = figure::legend_rows_estimate(&self.legend(), self.width - 2 * MARGIN - 10);
+        (
+            self.width,
+            TITLE_H + self.plot_height + X_LABEL_H + 24 * rows + 2 * MARGIN,
+        )
+    }
+
+    fn draw<DB>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult
+    where
+        DB: DrawingBackend,
+        DB::ErrorType: 'static,
+    {
+        let (w, _) = self.size();
+        figure::draw_title(root, &self.title, MARGIN as i32, 10)?;
+        let chart_area = root.clone().shrink(
+            (MARGIN, TITLE_H),
+            (w - 2 * MARGIN, self.plot_height + X_LABEL_H),
+        );
+        let ((x0, x1), (y0, y1)) = self.ranges();
+        macro_rules! with_chart {
+            ($xr:expr, $yr:expr) => {{
+                let mut chart = ChartBuilder::on(&chart_area)
+                    .margin_right(16)
+                    .x_label_area_size(X_LABEL_H)
+                    .y_label_area_size(Y_LABEL_W)
+                    .build_cartesian_2d($xr, $yr)?;
+                chart
+                    .configure_mesh()
+                    .light_line_style(PAPER)
+                    .bold_line_style(RULE.stroke_width(1))
+                    .x_desc(self.x_label.as_str())
+                    .y_desc(self.y_label.as_str())
+                    .axis_desc_style(figure::text(LABEL_PX, INK))
+                    .label_style(figure::text(TICK_PX, INK_SOFT))
+                    .axis_style(INK.stroke_width(1))
+                    .x_labels(8)
+                    .y_labels(7)
+                    .x_label_formatter(&figure::format_axis_value)
+                    .y_label_formatter(&figure::format_axis_value)
+                    .draw()?;
+                self.draw_data(root, &mut chart)?;
+            }};
+        }
+        match (self.log_x, self.log_y) {
+            (false, false) => with_chart!(x0..x1, y0..y1),
+            (true, false) => with_chart!((x0..x1).log_scale(), y0..y1),
+            (false, true) => with_chart!(x0..x1, (y0..y1).log_scale()),
+            (true, true) => with_chart!((x0..x1).log_scale(), (y0..y1).log_scale()),
+        }
+        let legend_y = (TITLE_H + self.plot_height + X_LABEL_H + 6) as i32;
+        figure::draw_legend_rows(
+            root,
+            &self.legend(),
+            (MARGIN + 10) as i32,
+            legend_y,
+            (w - 2 * MARGIN - 10) as i32,
+        )?;
+        Ok(())
+    }
+}
+
+impl CurveChart {
+    fn draw_data<DB, X, Y>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        chart: &mut ChartContext<'_, DB, Cartesian2d<X, Y>>,
+    ) -> DrawResult
+    where
+        DB: DrawingBackend,
+        DB::ErrorType: 'static,
+        X: Ranged<ValueType = f64>,
+        Y: Ranged<ValueType = f64>,
+    {
+        let ok = |v: f64, log: bool| v.is_finite() && (!log || v > 0.0);
+        let styles = self.styles();
+        // Bands first, all of them, so no band hides another series' line.
+        for (s, st) in self.series.iter().zip(&styles) {
+            let idx: Vec<usize> = (0..s.x.len())
+                .filter(|&k| {
+                    ok(s.x[k], self.log_x) && ok(s.lo[k], self.log_y) && ok(s.hi[k], self.log_y)
+                })
+                .collect();
+            if idx.len() < 2 {
+                continue;
+            }
+            let mut pts: Vec<(f64, f64)> = idx.iter().map(|&k| (s.x[k], s.hi[k])).collect();
+            pts.extend(idx.iter().rev().map(|&k| (s.x[k], s.lo[k])));
+            let alpha = if st.dashed { 0.14 } else { 0.20 };
+            chart.draw_series(std::iter::once(Polygon::new(
+                pts,
+                st.colour.mix(alpha).filled(),
+            )))?;
+        }
+        let (x_lo, x_hi) = {
+            let r = chart.x_range();
+            (r.start, r.end)
+        };
+        for r in &self.ref_lines {
+            if ok(r.value, self.log_y) {
+                let a = chart.backend_coord(&(x_lo, r.value));
+                let b = chart.backend_coord(&(x_hi, r.value));
+                figure::draw_line(root, &[a, b], HIGHLIGHT, 2, true)?;
+            }
+        }
+        for (s, st) in self.series.iter().zip(&styles) {
+            let pts: Vec<(i32, i32)> = (0..s.x.len())
+                .filter(|&k| ok(s.x[k], self.log_x) && ok(s.mean[k], self.log_y))
+                .map(|k| chart.backend_coord(&(s.x[k], s.mean[k])))
+                .collect();
+            if pts.len() >= 2 {
+                figure::draw_line(
+                    root,
+                    &pts,
+                    st.colour,
+                    if st.dashed { 2 } else { 3 },
+                    st.dashed,
+                )?;
+            }
+            // At most about a dozen markers per series, evenly spread, so dense time series
+            // stay readable while shape still identifies the series.
+            let stride = pts.len().div_ceil(12).max(1);
+            let offset = (styles.iter().position(|x| x == st).unwrap_or(0) * stride
+                / styles.len().max(1))
+            .min(stride - 1);
+            for p in pts.iter().skip(offset).step_by(stride) {
+                figure::draw_marker(root, *p, st.marker, 5.0, st.colour, PAPER)?;
+            }
+        }
+        let _ = SMALL_PX;
+        Ok(())
+    }
+}
