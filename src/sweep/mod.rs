@@ -11,11 +11,15 @@
 //! It reads and writes files only through `io::table`; it prints nothing.
 
 mod cells;
+mod context;
 mod merge;
+mod recommend;
 mod run;
 mod tidy;
 
 pub use cells::{format_setting, Cell, Shard, StudyKind};
+pub use context::{parse_method, StudyContext, METHOD_NAMES};
 pub use merge::merge_outcomes;
+pub use recommend::{recommend, Goal, Recommendation, DESIGN_METHODS};
 pub use run::{run_cells, CellEvaluator, SweepError};
 pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};
