@@ -173,7 +173,7 @@ impl<'a> StudyContext<'a> {
         interval_scale: f64,
     ) -> Result<ScoreResult, SweepError> {
         let case = self.case_for(blocks, interval_scale);
-        let prepared = prepare_with_model(case, layout_id, self.split.clone(), self.model.clone());
+        let prepared = prepare_with_model(case, layout_id, self.split, self.model.clone());
         run_monte_carlo(&prepared, &settings.run, &|_, _| {}).map_err(|e| SweepError::Cell {
             key: layout_id.to_string(),
             message: e.to_string(),
