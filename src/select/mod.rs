@@ -25,6 +25,7 @@ mod problem;
 mod qr;
 mod rank;
 mod rows;
+mod site_problem;
 
 pub use bound::{d_upper_bound, BoundReport};
 pub use constraints::{CandidatePlace, Constraints, Feasibility};
@@ -34,6 +35,7 @@ pub use problem::{Prior, Problem};
 pub use qr::{lazy_pivoted_qr, QrOrder};
 pub use rank::{rank, score_order, Method, RankOptions, Ranking};
 pub use rows::{CandidateRows, FLAT_PRIOR_EPSILON};
+pub use site_problem::{places_for_site, prior_from_energies, problem_for_site, site_constraints};
 
 /// One chosen sensor of a ranked layout.
 #[derive(Debug, Clone)]
