@@ -15,6 +15,7 @@ mod context;
 mod merge;
 mod recommend;
 mod run;
+mod studies;
 mod tidy;
 
 pub use cells::{format_setting, Cell, Shard, StudyKind};
@@ -22,4 +23,7 @@ pub use context::{parse_method, StudyContext, METHOD_NAMES};
 pub use merge::merge_outcomes;
 pub use recommend::{recommend, Goal, Recommendation, DESIGN_METHODS};
 pub use run::{run_cells, CellEvaluator, SweepError};
+pub use studies::{
+    budget_settings, cells_of, condition_studies, count_settings, design_studies, StudySpec,
+};
 pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};

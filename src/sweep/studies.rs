@@ -1,0 +1,130 @@
+//! The studies `plan` runs and `sweep` offers, as lists of cells: which methods each study
+//! compares and at which settings. Cell order is study by study, method by method, setting by
+//! setting — the canonical order shards and journals refer to.
+
+use super::cells::{Cell, StudyKind};
+
+/// One study: methods compared at settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StudySpec {
+    pub kind: StudyKind,
+    pub methods: Vec<String>,
+    pub settings: Vec<f64>,
+}
+
+impl StudySpec {
+    pub fn new(kind: StudyKind, methods: &[&str], settings: Vec<f64>) -> Self {
+        Self {
+            kind,
+            methods: methods.iter().map(|m| m.to_string()).collect(),
+            settings,
+        }
+    }
+}
+
+/// All cells of the studies, in canonical order.
+pub fn cells_of(specs: &[StudySpec]) -> Vec<Cell> {
+    specs
+        .iter()
+        .flat_map(|spec| {
+            spec.methods.iter().flat_map(move |method| {
+                spec.settings.iter().map(move |&setting| Cell {
+                    study: spec.kind,
+                    method: method.clone(),
+                    setting,
+                })
+            })
+        })
+        .collect()
+}
+
+/// Methods compared by the count study: the designs and both baselines.
+pub const COUNT_METHODS: [&str; 5] = ["greedy", "exchange", "qr", "grid", "random"];
+/// Methods compared when a layout is held fixed and the conditions change.
+pub const CONDITION_METHODS: [&str; 2] = ["greedy", "grid"];
+
+/// Sensor counts 1..=max.
+pub fn count_settings(max_count: usize) -> Vec<f64> {
+    (1..=max_count).map(|k| k as f64).collect()
+}
+
+/// Budgets spread over the cost of the largest layout of the count study: a quarter, half,
+/// three quarters and all of `full_cost`, never below the cheapest sensor.
+pub fn budget_settings(full_cost: f64, cheapest: f64) -> Vec<f64> {
+    let mut budgets: Vec<f64> = [0.25, 0.5, 0.75, 1.0]
+        .iter()
+        .map(|f| (f * full_cost).max(cheapest))
+        .collect();
+    budgets.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs().max(1.0));
+    budgets
+}
+
+/// Noise multipliers on every kind's standard deviation.
+pub const NOISE_MULTIPLIERS: [f64; 4] = [0.5, 1.0, 2.0, 4.0];
+/// Multipliers on every kind's sampling interval.
+pub const INTERVAL_MULTIPLIERS: [f64; 4] = [1.0, 2.0, 5.0, 10.0];
+/// Multipliers on the base background error.
+pub const BACKGROUND_MULTIPLIERS: [f64; 4] = [0.5, 1.0, 2.0, 4.0];
+
+/// The first phase of a plan: layouts by count and by budget.
+pub fn design_studies(max_count: usize, budgets: Vec<f64>) -> Vec<StudySpec> {
+    vec![
+        StudySpec::new(StudyKind::Count, &COUNT_METHODS, count_settings(max_count)),
+        StudySpec::new(StudyKind::Budget, &["greedy", "exchange"], budgets),
+    ]
+}
+
+/// The second phase: the recommended size under changed conditions and sensor losses.
+pub fn condition_studies(base_background: f64, max_loss: usize) -> Vec<StudySpec> {
+    let mut specs = vec![
+        StudySpec::new(
+            StudyKind::Noise,
+            &CONDITION_METHODS,
+            NOISE_MULTIPLIERS.to_vec(),
+        ),
+        StudySpec::new(
+            StudyKind::Interval,
+            &CONDITION_METHODS,
+            INTERVAL_MULTIPLIERS.to_vec(),
+        ),
+        StudySpec::new(
+            StudyKind::Background,
+            &CONDITION_METHODS,
+            BACKGROUND_MULTIPLIERS
+                .iter()
+                .map(|m| m * base_background)
+                .collect(),
+        ),
+    ];
+    if max_loss > 0 {
+        specs.push(StudySpec::new(
+            StudyKind::Loss,
+            &["greedy", "exchange"],
+            (0..=max_loss).map(|f| f as f64).collect(),
+        ));
+    }
+    specs
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cells_come_study_by_study_method_by_method() {
+        let cells = cells_of(&design_studies(3, vec![100.0, 200.0]));
+        assert_eq!(cells.len(), 5 * 3 + 2 * 2);
+        assert_eq!(cells[0].key(), "count/greedy/1");
+        assert_eq!(cells[3].key(), "count/exchange/1");
+        assert_eq!(cells[15].key(), "budget/greedy/100");
+    }
+
+    #[test]
+    fn budgets_never_fall_below_the_cheapest_sensor() {
+        assert_eq!(
+            budget_settings(1000.0, 400.0),
+            vec![400.0, 500.0, 750.0, 1000.0]
+        );
+        assert_eq!(budget_settings(1000.0, 600.0), vec![600.0, 750.0, 1000.0]);
+    }
+}
