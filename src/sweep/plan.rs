@@ -1,0 +1,184 @@
+//! The whole study behind `crowsnest plan`, as data: layouts by count and by budget for every
+//! method (phase one), the recommendation, then the recommended size under changed noise,
+//! sampling interval and background error and under worst-case sensor losses (phase two), and
+//! the detailed scores the report draws (error against time for the recommended layout, the
+//! grid baseline of the same size and the free run; the cost of each single lost sensor).
+//!
+//! Both phases go through [`run_cells`] with the same journal, so an interrupted plan resumes
+//! with identical results.
+
+use std::path::Path;
+
+use crate::select::{Limit, Method, Ranking};
+use crate::twin::ScoreResult;
+
+use super::cells::{Cell, StudyKind};
+use super::context::{parse_method, StudyContext};
+use super::recommend::{recommend, Goal, Recommendation};
+use super::run::{run_cells, SweepError};
+use super::studies::{budget_settings, cells_of, condition_studies, design_studies};
+use super::tidy::CellOutcome;
+use super::Shard;
+
+/// What the plan studies.
+#[derive(Debug, Clone)]
+pub struct PlanOptions {
+    /// Largest number of new sensors in the count study.
+    pub max_count: usize,
+    /// Target or budget; `None` asks for half the free run's time-mean RMSE.
+    pub goal: Option<Goal>,
+    /// Largest number of lost sensors in the loss study.
+    pub max_loss: usize,
+}
+
+/// Effect of losing one sensor of the recommended layout.
+#[derive(Debug, Clone)]
+pub struct SingleLoss {
+    pub candidate: String,
+    pub kind: String,
+    /// Time-mean RMSE summary without that sensor.
+    pub score: ScoreResult,
+}
+
+/// Everything `plan` found.
+pub struct PlanOutcome {
+    pub design: Vec<CellOutcome>,
+    pub conditions: Vec<CellOutcome>,
+    pub recommendation: Recommendation,
+    /// The recommended layout with its gains, cost and optimality gap.
+    pub ranking: Ranking,
+    pub recommended_score: ScoreResult,
+    /// The evenly spaced grid layout with as many new sensors as the recommended one.
+    pub grid_score: Option<(Ranking, ScoreResult)>,
+    /// Each sensor of the recommended layout lost alone, worst first.
+    pub single_losses: Vec<SingleLoss>,
+}
+
+/// Stages reported to the progress callback.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlanStage {
+    Design,
+    Conditions,
+    Details,
+}
+
+/// Runs the plan. `progress(stage, done, total)` reports cells (or detail scores).
+pub fn run_plan(
+    ctx: &mut StudyContext<'_>,
+    options: &PlanOptions,
+    journal: Option<&Path>,
+    progress: &mut dyn FnMut(PlanStage, usize, usize),
+) -> Result<PlanOutcome, SweepError> {
+    let n_kept = ctx.constraints.keep.len();
+    let full = ctx.ranking(Method::Greedy, Limit::Count(options.max_count))?;
+    let new_entries = || full.layout.entries.iter().filter(|e| !e.kept);
+    let full_cost: f64 = new_entries()
+        .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
+        .sum();
+    let cheapest = new_entries()
+        .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
+        .fold(f64::INFINITY, f64::min);
+    let max_count = new_entries().count().max(1);
+    let budgets = if cheapest.is_finite() {
+        budget_settings(full_cost, cheapest)
+    } else {
+        Vec::new()
+    };
+    let design_cells = cells_of(&design_studies(max_count, budgets));
+    let design = run_cells(&design_cells, ctx, Shard::WHOLE, journal, &mut |d, t| {
+        progress(PlanStage::Design, d, t)
+    })?;
+
+    let goal = options.goal.unwrap_or_else(|| {
+        let free = design
+            .iter()
+            .map(|o| o.free_time_mean_rmse)
+            .find(|f| f.is_finite())
+            .unwrap_or(f64::NAN);
+        Goal::TargetRmse(0.5 * free)
+    });
+    let recommendation = recommend(&design, goal).ok_or_else(|| SweepError::Cell {
+        key: "recommendation".into(),
+        message: "no design layout could be scored".into(),
+    })?;
+    let chosen = &recommendation.chosen;
+    let method = parse_method(&chosen.cell.method).unwrap_or(Method::Greedy);
+    let limit = chosen_limit(&chosen.cell);
+    let ranking = ctx.ranking(method, limit)?;
+    let n_new = ranking.layout.entries.iter().filter(|e| !e.kept).count();
+
+    ctx.base_count = n_new.max(1);
+    let max_loss = options.max_loss.min((n_new + n_kept).saturating_sub(1));
+    let mut condition_cells =
+        cells_of(&condition_studies(ctx.settings.run.background_sd, max_loss));
+    // Condition cells follow the design cells in the journal's numbering.
+    let offset = design_cells.len();
+    let mut all_cells = design_cells.clone();
+    all_cells.append(&mut condition_cells);
+    let conditions = run_cells(
+        &all_cells[offset..],
+        ctx,
+        Shard::WHOLE,
+        journal,
+        &mut |d, t| progress(PlanStage::Conditions, d, t),
+    )?
+    .into_iter()
+    .map(|mut o| {
+        o.cell_idx += offset;
+        o
+    })
+    .collect();
+
+    let blocks = ctx.layout_blocks(&ranking.layout);
+    let n_details = 2 + blocks.len();
+    progress(PlanStage::Details, 0, n_details);
+    let settings = ctx.settings.clone();
+    let recommended_score = ctx.score_blocks(&blocks, &chosen.sensors, &settings, 1.0)?;
+    progress(PlanStage::Details, 1, n_details);
+    let grid_score = match ctx.ranking(Method::Grid, Limit::Count(ctx.base_count)) {
+        Ok(grid) => {
+            let grid_blocks = ctx.layout_blocks(&grid.layout);
+            let score = ctx.score_blocks(&grid_blocks, "grid-baseline", &settings, 1.0)?;
+            Some((grid, score))
+        }
+        Err(_) => None,
+    };
+    progress(PlanStage::Details, 2, n_details);
+    let mut single_losses = Vec::with_capacity(blocks.len());
+    for (i, &lost) in blocks.iter().enumerate() {
+        let remaining: Vec<usize> = blocks.iter().copied().filter(|&b| b != lost).collect();
+        let (candidate, kind) = ctx.problem.block_name(lost);
+        let id = format!("without {candidate}:{kind}");
+        let score = ctx.score_blocks(&remaining, &id, &settings, 1.0)?;
+        single_losses.push(SingleLoss {
+            candidate,
+            kind,
+            score,
+        });
+        progress(PlanStage::Details, 3 + i, n_details);
+    }
+    single_losses.sort_by(|a, b| b.score.mean_rmse.mean.total_cmp(&a.score.mean_rmse.mean));
+    Ok(PlanOutcome {
+        design,
+        conditions,
+        recommendation,
+        ranking,
+        recommended_score,
+        grid_score,
+        single_losses,
+    })
+}
+
+fn block_of(ctx: &StudyContext<'_>, entry: &crate::select::LayoutEntry) -> usize {
+    ctx.problem
+        .find_block(entry.candidate_idx, entry.kind_idx)
+        .unwrap_or(0)
+}
+
+/// The selection limit a design cell was ranked with.
+pub fn chosen_limit(cell: &Cell) -> Limit {
+    match cell.study {
+        StudyKind::Budget => Limit::Budget(cell.setting),
+        _ => Limit::Count(cell.setting.round() as usize),
+    }
+}
