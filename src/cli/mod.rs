@@ -9,6 +9,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod merge;
+mod score;
 
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
 pub const EXIT_BAD_INPUT: u8 = 2;
@@ -35,6 +36,8 @@ pub struct Cli {
 pub enum Command {
     /// Join the study tables of `sweep --shard i/N` runs into one table.
     Merge(merge::MergeArgs),
+    /// Score a layout with Monte Carlo twin experiments (reduced model + filter).
+    Score(score::ScoreArgs),
 }
 
 /// Runs crowsnest with the given arguments (the first is the program name).
@@ -70,6 +73,7 @@ where
 fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Merge(args) => merge::run(args),
+        Command::Score(args) => score::run(args),
     }
 }
 
@@ -81,6 +85,9 @@ fn exit_code_for(err: &anyhow::Error) -> u8 {
                 .downcast_ref::<crate::sensors::SensorError>()
                 .is_some()
             || cause.downcast_ref::<BadArgument>().is_some()
+            || cause
+                .downcast_ref::<crate::twin::TwinError>()
+                .is_some_and(|e| e.is_bad_input())
             || cause.downcast_ref::<crate::select::SelectError>().is_some()
             || cause
                 .downcast_ref::<crate::basis::BasisError>()

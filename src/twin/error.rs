@@ -60,3 +60,11 @@ pub enum TwinError {
     #[error("filter set-up failed: {0}")]
     Numerical(String),
 }
+
+impl TwinError {
+    /// `true` when the user can fix the cause (a setting, the layout, the data); `false` for a
+    /// numerical failure of the filter set-up.
+    pub fn is_bad_input(&self) -> bool {
+        !matches!(self, TwinError::Numerical(_))
+    }
+}

@@ -23,7 +23,9 @@ pub mod montecarlo;
 pub mod nudge;
 pub mod schedule;
 mod settings;
+pub mod tables;
 pub mod testcase;
+pub mod wire;
 
 pub use error::TwinError;
 pub use model::{ModelReport, ReducedModel, TimeSplit};
@@ -32,3 +34,4 @@ pub use montecarlo::{
     TwinCase,
 };
 pub use settings::{FilterKind, ModelKind, ModelSettings, NudgeGain, RunSettings, TwinSettings};
+pub use wire::{case_from_site, layout_blocks, score_layout, truth_readings};

@@ -506,8 +506,11 @@ fn free_run(model: &ReducedModel, span: &Span<'_>, a0: &[f64], norm: f64) -> Vec
         .collect()
 }
 
-/// Nudging strength minimising the time-mean RMSE of one nudged run on the training span
-/// (fixed streams, so the objective is a deterministic function of the strength).
+/// Runs of the training span the nudging strength is tuned on (fixed streams, so the
+/// objective is a deterministic function of the strength).
+const N_TUNING_RUNS: u64 = 3;
+
+/// Nudging strength minimising the time-mean RMSE of nudged runs on the training span.
 fn tune_nudging(
     prep: &Prepared,
     settings: &RunSettings,
@@ -523,58 +526,58 @@ fn tune_nudging(
         settings.every,
     )?;
     let h = prep.case.rows.h.as_ref();
-    let tuning_run = u64::MAX / 8; // a stream no scoring run uses
+    let first_tuning_run = u64::MAX / 8; // streams no scoring run uses
     let objective = |strength: f64| -> f64 {
         let gains = static_gains(prep.case.n_modes(), &schedule, |rows| {
             nudging_gain(h, noise_var, rows, strength)
         });
-        let mut bg_rng = run_rng(
-            settings.seed,
-            prep.layout_hash,
-            settings.setting_id,
-            tuning_run,
-            STREAM_BACKGROUND,
-        );
-        let a0: Vec<f64> = (0..prep.case.n_modes())
-            .map(|j| {
-                span.coeffs_rm[j]
-                    + background_sd
-                        * <StandardNormal as Distribution<f64>>::sample(
-                            &StandardNormal,
-                            &mut bg_rng,
-                        )
-            })
-            .collect();
-        let mut readings = NoisyReadings {
-            truth: span.readings,
-            n_rows: prep.case.rows.n_rows(),
-            noise_sd,
-            rng: run_rng(
-                settings.seed,
-                prep.layout_hash,
-                settings.setting_id,
-                tuning_run,
-                STREAM_READINGS,
-            ),
-        };
-        let mut sum = 0.0;
-        let ok = run_with_gains(
-            &prep.model,
-            &prep.h_rm,
-            &prep.case.rows.offset,
-            &schedule,
-            &gains,
-            &mut readings,
-            &a0,
-            |step, est| {
-                sum += step_rmse(&span, step, est, prep.case.field_norm).0;
-            },
-        );
-        if ok.is_ok() {
-            sum / span.n_steps as f64
-        } else {
-            f64::INFINITY
+        let mut total = 0.0;
+        for k in 0..N_TUNING_RUNS {
+            let stream = |purpose| {
+                run_rng(
+                    settings.seed,
+                    prep.layout_hash,
+                    settings.setting_id,
+                    first_tuning_run + k,
+                    purpose,
+                )
+            };
+            let mut bg_rng = stream(STREAM_BACKGROUND);
+            let a0: Vec<f64> = (0..prep.case.n_modes())
+                .map(|j| {
+                    span.coeffs_rm[j]
+                        + background_sd
+                            * <StandardNormal as Distribution<f64>>::sample(
+                                &StandardNormal,
+                                &mut bg_rng,
+                            )
+                })
+                .collect();
+            let mut readings = NoisyReadings {
+                truth: span.readings,
+                n_rows: prep.case.rows.n_rows(),
+                noise_sd,
+                rng: stream(STREAM_READINGS),
+            };
+            let mut sum = 0.0;
+            let ok = run_with_gains(
+                &prep.model,
+                &prep.h_rm,
+                &prep.case.rows.offset,
+                &schedule,
+                &gains,
+                &mut readings,
+                &a0,
+                |step, est| {
+                    sum += step_rmse(&span, step, est, prep.case.field_norm).0;
+                },
+            );
+            if ok.is_err() {
+                return f64::INFINITY;
+            }
+            total += sum / span.n_steps as f64;
         }
+        total / N_TUNING_RUNS as f64
     };
     tune_strength(&objective)
 }
