@@ -21,9 +21,11 @@ grep "Maximum resident set size" "$work/time.txt"
 echo "== NumPy"
 numpy run "$input" | tee "$work/numpy.txt"
 
-ours=$(awk '/^RESULT pod_seconds/ {print $3}' "$work/rust.txt")
-eigh=$(awk '/^RESULT eigh_seconds/ {print $3}' "$work/numpy.txt")
-svd=$(awk '/^RESULT svd_seconds/ {print $3}' "$work/numpy.txt")
-awk -v o="$ours" -v e="$eigh" -v s="$svd" 'BEGIN {
-  printf "ratio crowsnest / numpy eigh route: %.2f (target <= 1)\n", o / e;
-  printf "ratio crowsnest / numpy svd:        %.3f (target < 0.2)\n", o / s }'
+result() { awk -v k="$2" '$1 == "RESULT" && $2 == k {print $3}' "$work/$1"; }
+echo "== load average during the run: $(cut -d' ' -f1-3 /proc/loadavg) (2 cores; >2 means shared)"
+for kind in seconds cpu; do
+  awk -v o="$(result rust.txt pod_$kind)" -v e="$(result numpy.txt eigh_$kind)" \
+      -v s="$(result numpy.txt svd_$kind)" -v k="$kind" 'BEGIN {
+    printf "%-7s crowsnest / numpy eigh route: %.2f (target <= 1)\n", k, o / e;
+    printf "%-7s crowsnest / numpy svd:        %.3f (target < 0.2)\n", k, o / s }'
+done

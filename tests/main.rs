@@ -3,6 +3,7 @@
 #![allow(clippy::unwrap_used)]
 
 mod basis;
+mod basis_cli;
 mod common;
 mod render;
 mod select;

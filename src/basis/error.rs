@@ -29,6 +29,13 @@ pub enum BasisError {
          energy; ask for at most {n_nonzero} modes"
     )]
     TooManyModesForData { requested: usize, n_nonzero: usize },
+    /// More modes asked than a precomputed basis file holds.
+    #[error("{}: asked for {requested} modes but the file holds {n_in_file}", path.display())]
+    TooManyModesInFile {
+        requested: usize,
+        n_in_file: usize,
+        path: std::path::PathBuf,
+    },
     /// Fewer than two snapshots: the fluctuation about the mean is zero.
     #[error("{n_snapshots} snapshot(s): at least 2 are needed to form a mean and a fluctuation")]
     TooFewSnapshots { n_snapshots: usize },

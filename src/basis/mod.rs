@@ -17,6 +17,7 @@
 
 pub mod blocks;
 pub mod error;
+pub mod for_site;
 pub mod project;
 pub mod rank;
 pub mod snapshots_method;
@@ -24,6 +25,7 @@ pub mod svd_method;
 pub mod weights;
 
 pub use error::BasisError;
+pub use for_site::{compute_for_site, compute_for_site_with_warnings};
 pub use project::{project, project_field, Projection};
 pub use rank::{energy_fractions, Rank};
 

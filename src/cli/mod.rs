@@ -8,6 +8,7 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+mod basis;
 mod merge;
 mod score;
 
@@ -34,6 +35,8 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    #[command(about = basis::ABOUT, long_about = basis::LONG_ABOUT)]
+    Basis(basis::BasisArgs),
     /// Join the study tables of `sweep --shard i/N` runs into one table.
     Merge(merge::MergeArgs),
     /// Score a layout with Monte Carlo twin experiments (reduced model + filter).
@@ -72,6 +75,7 @@ where
 
 fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
+        Command::Basis(args) => basis::run(&args),
         Command::Merge(args) => merge::run(args),
         Command::Score(args) => score::run(args),
     }
