@@ -7,7 +7,9 @@ use std::path::PathBuf;
 
 use crowsnest::basis::Basis;
 use crowsnest::io::*;
-use crowsnest::sensors::{beam_traces, build_blocks, weighting, BeamStop, Block, SensorError};
+use crowsnest::sensors::{
+    beam_traces, build_blocks, build_packed, weighting, BeamStop, Block, SensorError,
+};
 
 use crate::common::assert_close;
 
@@ -674,5 +676,36 @@ fn blocks_are_identical_whatever_the_thread_count() {
     }
     for block in one.blocks.iter().step_by(37) {
         assert_consistent(block, &basis);
+    }
+    // The packed form holds the same blocks, bit for bit, whatever the thread count.
+    let packed = |n_threads: usize| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n_threads)
+            .build()
+            .unwrap()
+            .install(|| build_packed(&site, &basis).unwrap())
+    };
+    let (p1, p2) = (packed(1), packed(2));
+    assert_eq!(
+        p1.h.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+        p2.h.iter().map(|x| x.to_bits()).collect::<Vec<_>>()
+    );
+    assert_eq!(p1.n_blocks(), one.blocks.len());
+    assert_eq!(p1.warnings, one.warnings);
+    for (b, block) in one.blocks.iter().enumerate() {
+        let unpacked = p1.block(b);
+        assert_eq!(
+            (unpacked.candidate_idx, unpacked.kind_idx),
+            (block.candidate_idx, block.kind_idx)
+        );
+        assert_eq!(unpacked.stencil, block.stencil);
+        assert_eq!(unpacked.offset, block.offset);
+        assert_eq!(unpacked.noise_var, block.noise_var);
+        assert_eq!(unpacked.cost.to_bits(), block.cost.to_bits());
+        for row in 0..block.n_rows() {
+            for m in 0..5 {
+                assert_eq!(unpacked.h[(row, m)].to_bits(), block.h[(row, m)].to_bits());
+            }
+        }
     }
 }
