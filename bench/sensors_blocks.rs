@@ -78,6 +78,7 @@ fn main() {
             modes: "modes.npy".into(),
             mean: "mean.npy".into(),
             energies: "energies.csv".into(),
+            dt: None,
         }),
         kinds: vec![SensorKind {
             name: "sonic-u".into(),
