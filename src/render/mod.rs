@@ -19,6 +19,7 @@ pub mod geojson;
 pub mod html;
 pub mod palette;
 pub mod pareto;
+pub mod plan_report;
 pub mod report;
 pub mod sitemap;
 
