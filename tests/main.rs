@@ -10,3 +10,4 @@ mod select;
 mod sensors;
 mod site_load;
 mod twin;
+mod synth;
