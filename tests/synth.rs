@@ -250,3 +250,47 @@ fn schaefer_turek_2d1_drag_coefficient() {
         "C_D = {cd}, expected within 3 % of [5.57, 5.59]"
     );
 }
+
+#[test]
+#[ignore]
+fn tmp_speed() {
+    for threads in [1] {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            let mut lattice = Lattice::new(LatticeSetup {
+                nx: 400,
+                ny: 60,
+                collision: Collision {
+                    tau: 0.51,
+                    magic: MAGIC,
+                    smagorinsky: 0.17,
+                    accel: [0.0, 0.0],
+                },
+                edges: [
+                    Edge::Velocity,
+                    Edge::Convective,
+                    Edge::Velocity,
+                    Edge::FreeSlip,
+                ],
+                solid: Vec::new(),
+                wall_fraction: Vec::new(),
+            });
+            for u in lattice.edge_velocity_mut(Side::West) {
+                *u = [0.03, 0.0];
+            }
+            lattice.initialise(|_, _| (1.0, 0.03, 0.0));
+            let t = std::time::Instant::now();
+            for _ in 0..2000 {
+                lattice.step();
+            }
+            let s = t.elapsed().as_secs_f64();
+            eprintln!(
+                "threads {threads}: {:.1} MLUPS",
+                400.0 * 60.0 * 2000.0 / s / 1e6
+            );
+        });
+    }
+}

@@ -77,8 +77,9 @@ pub fn moments(f: &[f64; Q], accel: [f64; 2]) -> (f64, f64, f64) {
         jx += CX[q] as f64 * f[q];
         jy += CY[q] as f64 * f[q];
     }
-    let ux = jx / rho + 0.5 * accel[0];
-    let uy = jy / rho + 0.5 * accel[1];
+    let inv_rho = 1.0 / rho;
+    let ux = jx * inv_rho + 0.5 * accel[0];
+    let uy = jy * inv_rho + 0.5 * accel[1];
     (rho, ux, uy)
 }
 
@@ -122,9 +123,12 @@ pub fn collide(f: &mut [f64; Q], c: &Collision) -> (f64, f64, f64) {
     } else {
         c.tau
     };
-    let tau_minus = 0.5 + c.magic / (tau_plus - 0.5);
-    let omega_plus = 1.0 / tau_plus;
-    let omega_minus = 1.0 / tau_minus;
+    // ω⁺ = 1/τ⁺ and ω⁻ = 1/τ⁻ with τ⁻ = ½ + Λ/(τ⁺ − ½), from a single division.
+    let excess = tau_plus - 0.5;
+    let minus_num = 0.5 * excess + c.magic;
+    let inv = 1.0 / (tau_plus * minus_num);
+    let omega_plus = inv * minus_num;
+    let omega_minus = inv * tau_plus * excess;
     let has_force = c.accel[0] != 0.0 || c.accel[1] != 0.0;
     let uf = ux * force[0] + uy * force[1];
     let f0 = f[0];
