@@ -75,6 +75,7 @@ fn poiseuille_error_magic(n_across: usize, tau: f64, wall_offset: Option<f64>, m
         ],
         solid,
         wall_fraction: fractions,
+        sponge: Vec::new(),
     });
     let exact = |y: f64| g / (2.0 * nu) * (y - y0) * (y1 - y);
     lattice.initialise(|_, j| (1.0, exact(j as f64), 0.0));
@@ -150,6 +151,7 @@ fn taylor_green_vortex_decays_at_the_viscous_rate() {
             edges: [Edge::Periodic; 4],
             solid: Vec::new(),
             wall_fraction: Vec::new(),
+            sponge: Vec::new(),
         });
         let shape_u = |i: usize, j: usize| -(k * i as f64).cos() * (k * j as f64).sin();
         let shape_v = |i: usize, j: usize| (k * i as f64).sin() * (k * j as f64).cos();
@@ -218,6 +220,7 @@ fn schaefer_turek_2d1_drag_coefficient() {
         ],
         solid,
         wall_fraction: fractions,
+        sponge: Vec::new(),
     });
     let height = ny as f64;
     let profile = |j: usize| {
@@ -236,7 +239,7 @@ fn schaefer_turek_2d1_drag_coefficient() {
             lattice.step();
         }
         cd = drag(&lattice);
-        if (cd - previous).abs() < 1e-5 * cd.abs() {
+        if (cd - previous).abs() < 5e-5 * cd.abs() {
             break;
         }
         previous = cd;
@@ -249,48 +252,4 @@ fn schaefer_turek_2d1_drag_coefficient() {
         cd > 5.57 * 0.97 && cd < 5.59 * 1.03,
         "C_D = {cd}, expected within 3 % of [5.57, 5.59]"
     );
-}
-
-#[test]
-#[ignore]
-fn tmp_speed() {
-    for threads in [1] {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .unwrap();
-        pool.install(|| {
-            let mut lattice = Lattice::new(LatticeSetup {
-                nx: 400,
-                ny: 60,
-                collision: Collision {
-                    tau: 0.51,
-                    magic: MAGIC,
-                    smagorinsky: 0.17,
-                    accel: [0.0, 0.0],
-                },
-                edges: [
-                    Edge::Velocity,
-                    Edge::Convective,
-                    Edge::Velocity,
-                    Edge::FreeSlip,
-                ],
-                solid: Vec::new(),
-                wall_fraction: Vec::new(),
-            });
-            for u in lattice.edge_velocity_mut(Side::West) {
-                *u = [0.03, 0.0];
-            }
-            lattice.initialise(|_, _| (1.0, 0.03, 0.0));
-            let t = std::time::Instant::now();
-            for _ in 0..2000 {
-                lattice.step();
-            }
-            let s = t.elapsed().as_secs_f64();
-            eprintln!(
-                "threads {threads}: {:.1} MLUPS",
-                400.0 * 60.0 * 2000.0 / s / 1e6
-            );
-        });
-    }
 }

@@ -33,6 +33,10 @@ const SMAGORINSKY: f64 = 0.15;
 /// (Ginzburg et al. 2008); the validation tests use Λ = 3/16 as well.
 const MAGIC: f64 = 0.25;
 const GUST_LENGTH: f64 = 150.0;
+/// Depth of the absorbing layer before an open edge, m, and its peak extra viscosity
+/// (lattice units).
+const SPONGE_WIDTH: f64 = 30.0;
+const SPONGE_VISCOSITY: f64 = 0.05;
 const SWING_TIME: f64 = 120.0;
 const N_GUST_MODES: usize = 4;
 /// Default aerodynamic roughness (m) and reference height (m) of the slice profile: open
@@ -266,7 +270,7 @@ pub fn plan(site: &Site, quick: bool) -> Result<RunPlan, SynthError> {
                 Side::South => [0.0, -1.0],
                 Side::North => [0.0, 1.0],
             };
-            if direction[0] * n[0] + direction[1] * n[1] > 0.3 {
+            if direction[0] * n[0] + direction[1] * n[1] > 0.5 {
                 Edge::Convective
             } else {
                 Edge::Velocity
@@ -384,6 +388,33 @@ pub fn plan(site: &Site, quick: bool) -> Result<RunPlan, SynthError> {
         })
         .collect();
 
+    // Absorbing sponge in front of each open edge: the viscosity rises quadratically over
+    // SPONGE_WIDTH of the domain so wakes fade before they meet the outflow rule
+    // (Israeli & Orszag 1981, *J. Comput. Phys.* 41, "Approximation of radiation boundary
+    // conditions").
+    let sponge_nodes = (SPONGE_WIDTH / h[0]).round().max(2.0);
+    let mut sponge = vec![0.0; nx * ny];
+    for side in Side::ALL {
+        if edges[side as usize] != Edge::Convective {
+            continue;
+        }
+        for j in 0..ny {
+            for i in 0..nx {
+                let distance = match side {
+                    Side::West => i,
+                    Side::East => nx - 1 - i,
+                    Side::South => j,
+                    Side::North => ny - 1 - j,
+                } as f64;
+                if distance < sponge_nodes {
+                    let depth = (sponge_nodes - distance) / sponge_nodes;
+                    let extra = SPONGE_VISCOSITY * depth * depth;
+                    sponge[j * nx + i] = f64::max(sponge[j * nx + i], extra);
+                }
+            }
+        }
+    }
+
     Ok(RunPlan {
         plane: site.plane,
         units,
@@ -394,6 +425,7 @@ pub fn plan(site: &Site, quick: bool) -> Result<RunPlan, SynthError> {
             edges,
             solid,
             wall_fraction: Vec::new(),
+            sponge,
         },
         scale,
         site_nx: grid.nx,

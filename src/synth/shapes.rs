@@ -150,7 +150,9 @@ mod tests {
         assert!(square.contains([2.0, 2.0]));
         assert!(!square.contains([0.5, 2.0]));
         assert!(!square.contains([2.0, 3.5]));
-        let t = square.first_crossing([0.0, 2.0], [2.0, 2.0]).unwrap();
+        let t = square
+            .first_crossing([0.0, 2.0], [2.0, 2.0])
+            .expect("the segment crosses the left side");
         assert!((t - 0.5).abs() < 1e-12);
         assert!(square.first_crossing([0.0, 0.0], [0.0, 4.0]).is_none());
     }
