@@ -9,5 +9,5 @@ mod render;
 mod select;
 mod sensors;
 mod site_load;
-mod twin;
 mod synth;
+mod twin;
