@@ -9,6 +9,7 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod basis;
+mod check;
 mod merge;
 mod score;
 
@@ -37,6 +38,16 @@ pub struct Cli {
 pub enum Command {
     #[command(about = basis::ABOUT, long_about = basis::LONG_ABOUT)]
     Basis(basis::BasisArgs),
+    /// Check a site's files before planning and print what they describe.
+    ///
+    /// Reads site.toml and every file it names: the domain (grid or point cloud, solids,
+    /// obstacles), the channels, the wind snapshots or the imported POD basis, the sensor
+    /// kinds, the candidate mounts, the exclusion zones and the sensors already on site.
+    /// Every snapshot value is read and must be a finite number. The first problem stops the
+    /// check with one line naming the file, the row or key, what was found and what was
+    /// expected (exit code 2). Findings that do not stop planning, such as a candidate inside
+    /// an exclusion zone, are listed as warnings. Nothing is written.
+    Check(check::CheckArgs),
     /// Join the study tables of `sweep --shard i/N` runs into one table.
     Merge(merge::MergeArgs),
     /// Score a layout with Monte Carlo twin experiments (reduced model + filter).
@@ -76,6 +87,7 @@ where
 fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Basis(args) => basis::run(&args),
+        Command::Check(args) => check::run(args),
         Command::Merge(args) => merge::run(args),
         Command::Score(args) => score::run(args),
     }
