@@ -2,6 +2,7 @@
 
 #![allow(clippy::unwrap_used)]
 
+mod bad_inputs;
 mod basis;
 mod basis_cli;
 mod common;

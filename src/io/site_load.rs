@@ -177,7 +177,10 @@ fn syntax_error(path: &Path, text: &str, err: &toml::de::Error) -> IoError {
     IoError::invalid(
         path,
         place,
-        format!("not valid TOML: {}", err.message().trim()),
+        format!(
+            "not valid TOML: {}",
+            err.message().trim().replace('\n', "; ")
+        ),
     )
 }
 
