@@ -11,6 +11,8 @@ use clap::{Parser, Subcommand};
 mod basis;
 mod check;
 mod merge;
+mod plan;
+mod progress;
 mod score;
 
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
@@ -52,6 +54,8 @@ pub enum Command {
     Merge(merge::MergeArgs),
     /// Score a layout with Monte Carlo twin experiments (reduced model + filter).
     Score(score::ScoreArgs),
+    /// The whole job: basis, ranked layouts by every method, twin scores, studies, report.
+    Plan(plan::PlanArgs),
 }
 
 /// Runs crowsnest with the given arguments (the first is the program name).
@@ -90,7 +94,27 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Check(args) => check::run(args),
         Command::Merge(args) => merge::run(args),
         Command::Score(args) => score::run(args),
+        Command::Plan(args) => plan::run(args),
     }
+}
+
+/// Demo sites generate their snapshots with the built-in flow solver; say so when they are
+/// missing instead of failing on an absent file.
+fn synth_if_missing(site: &crate::io::Site, _quick: bool) -> anyhow::Result<()> {
+    if let crate::io::FlowSource::Snapshots(files) = &site.flow {
+        if !files.path.exists() {
+            return Err(BadArgument {
+                option: "site".into(),
+                message: format!(
+                    "{} does not exist; generate it with `crowsnest synth {}` or point [snapshots] at your own file",
+                    files.path.display(),
+                    site.root.display()
+                ),
+            }
+            .into());
+        }
+    }
+    Ok(())
 }
 
 /// Bad input (exit 2) when any error in the chain is a user-facing input error.

@@ -592,12 +592,16 @@ fn justify(site: &Site, currency: &str, unit: &str, outcome: &PlanOutcome) -> Ve
     let n_new = layout.entries.len() - n_existing;
     let mut out = Vec::new();
     let existing = if n_existing > 0 {
-        format!(" plus the {n_existing} existing sensors kept")
+        format!(
+            " plus the {n_existing} existing sensor{} kept",
+            if n_existing == 1 { "" } else { "s" }
+        )
     } else {
         String::new()
     };
     out.push(format!(
-        "Recommended: {n_new} new sensors{existing}, chosen by {} selection, for {} in total.",
+        "Recommended: {n_new} new sensor{}{existing}, chosen by {} selection, for {} in total.",
+        if n_new == 1 { "" } else { "s" },
         method_label(&chosen.cell.method),
         money(chosen.cost, currency)
     ));

@@ -118,10 +118,7 @@ impl<'a> StudyContext<'a> {
             seed: self.seed,
             n_random_draws: self.n_random_draws,
         };
-        let ranking = rank(self.problem, &options).map_err(|e| SweepError::Cell {
-            key: key.clone(),
-            message: e.to_string(),
-        })?;
+        let ranking = rank(self.problem, &options).map_err(|e| SweepError::cell(&key, e))?;
         self.rankings.borrow_mut().insert(key, ranking.clone());
         Ok(ranking)
     }
@@ -174,10 +171,8 @@ impl<'a> StudyContext<'a> {
     ) -> Result<ScoreResult, SweepError> {
         let case = self.case_for(blocks, interval_scale);
         let prepared = prepare_with_model(case, layout_id, self.split, self.model.clone());
-        run_monte_carlo(&prepared, &settings.run, &|_, _| {}).map_err(|e| SweepError::Cell {
-            key: layout_id.to_string(),
-            message: e.to_string(),
-        })
+        run_monte_carlo(&prepared, &settings.run, &|_, _| {})
+            .map_err(|e| SweepError::cell(layout_id, e))
     }
 
     /// Removes `n_lost` sensors from `blocks`, each time the one whose loss lowers the
@@ -221,13 +216,15 @@ impl<'a> StudyContext<'a> {
 
 impl CellEvaluator for StudyContext<'_> {
     fn evaluate(&self, cell: &Cell) -> Result<CellOutcome, SweepError> {
-        let method = parse_method(&cell.method).ok_or_else(|| SweepError::Cell {
-            key: cell.key(),
-            message: format!(
-                "unknown method `{}`, expected one of {}",
-                cell.method,
-                METHOD_NAMES.join(", ")
-            ),
+        let method = parse_method(&cell.method).ok_or_else(|| {
+            SweepError::cell(
+                cell.key(),
+                format!(
+                    "unknown method `{}`, expected one of {}",
+                    cell.method,
+                    METHOD_NAMES.join(", ")
+                ),
+            )
         })?;
         let mut settings = self.settings.clone();
         settings.run.setting_id = fnv1a(cell.key().as_bytes());

@@ -13,6 +13,7 @@
 mod cells;
 mod context;
 mod merge;
+mod pipeline;
 mod plan;
 mod recommend;
 mod run;
@@ -22,6 +23,7 @@ mod tidy;
 pub use cells::{format_setting, Cell, Shard, StudyKind};
 pub use context::{parse_method, StudyContext, METHOD_NAMES};
 pub use merge::merge_outcomes;
+pub use pipeline::{PipelineStage, SitePipeline};
 pub use plan::{chosen_limit, run_plan, PlanOptions, PlanOutcome, PlanStage, SingleLoss};
 pub use recommend::{recommend, Goal, Recommendation, DESIGN_METHODS};
 pub use run::{run_cells, CellEvaluator, SweepError};

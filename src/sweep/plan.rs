@@ -9,7 +9,7 @@
 
 use std::path::Path;
 
-use crate::select::{Limit, Method, Ranking};
+use crate::select::{Feasibility, Limit, Method, Ranking};
 use crate::twin::ScoreResult;
 
 use super::cells::{Cell, StudyKind};
@@ -70,7 +70,13 @@ pub fn run_plan(
     progress: &mut dyn FnMut(PlanStage, usize, usize),
 ) -> Result<PlanOutcome, SweepError> {
     let n_kept = ctx.constraints.keep.len();
-    let full = ctx.ranking(Method::Greedy, Limit::Count(options.max_count))?;
+    let n_admissible = Feasibility::new(ctx.problem, &ctx.constraints)
+        .map_err(|e| SweepError::stage("checking the constraints", e))?
+        .n_admissible_positions();
+    let full = ctx.ranking(
+        Method::Greedy,
+        Limit::Count(options.max_count.min(n_admissible).max(1)),
+    )?;
     let new_entries = || full.layout.entries.iter().filter(|e| !e.kept);
     let full_cost: f64 = new_entries()
         .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
@@ -97,9 +103,8 @@ pub fn run_plan(
             .unwrap_or(f64::NAN);
         Goal::TargetRmse(0.5 * free)
     });
-    let recommendation = recommend(&design, goal).ok_or_else(|| SweepError::Cell {
-        key: "recommendation".into(),
-        message: "no design layout could be scored".into(),
+    let recommendation = recommend(&design, goal).ok_or_else(|| {
+        SweepError::stage("recommending a layout", "no design layout could be scored")
     })?;
     let chosen = &recommendation.chosen;
     let method = parse_method(&chosen.cell.method).unwrap_or(Method::Greedy);

@@ -19,9 +19,42 @@ pub enum SweepError {
         line: usize,
         message: String,
     },
-    /// A cell failed; the message comes from the stage that failed.
-    #[error("cell {key}: {message}")]
-    Cell { key: String, message: String },
+    /// A cell failed in the stage named by its source.
+    #[error("study cell {key}")]
+    Cell {
+        key: String,
+        #[source]
+        source: Box<dyn std::error::Error + Send + Sync>,
+    },
+    /// Setting up the study failed (basis, sensor blocks, selection problem, model).
+    #[error("{stage}")]
+    Stage {
+        stage: String,
+        #[source]
+        source: Box<dyn std::error::Error + Send + Sync>,
+    },
+}
+
+impl SweepError {
+    pub fn cell(
+        key: impl Into<String>,
+        source: impl Into<Box<dyn std::error::Error + Send + Sync>>,
+    ) -> Self {
+        SweepError::Cell {
+            key: key.into(),
+            source: source.into(),
+        }
+    }
+
+    pub fn stage(
+        stage: impl Into<String>,
+        source: impl Into<Box<dyn std::error::Error + Send + Sync>>,
+    ) -> Self {
+        SweepError::Stage {
+            stage: stage.into(),
+            source: source.into(),
+        }
+    }
 }
 
 /// Evaluates one cell: ranks its layout and scores it (`cell_idx` of the outcome is set by
@@ -119,7 +152,7 @@ mod tests {
             if self.fail_at.as_deref() == Some(&cell.key()) {
                 return Err(SweepError::Cell {
                     key: cell.key(),
-                    message: "interrupted".into(),
+                    source: "interrupted".into(),
                 });
             }
             self.calls.borrow_mut().push(cell.key());
