@@ -709,3 +709,67 @@ fn blocks_are_identical_whatever_the_thread_count() {
         }
     }
 }
+
+#[test]
+fn range_weighting_matches_scipy_reference() {
+    // Fixture from tests/fixtures/range-weighting/make.py: numerical convolution of the
+    // rectangular gate with the Gaussian pulse density (scipy.integrate.quad, scipy.stats.norm),
+    // independent of the erf closed form used here.
+    let path =
+        crate::common::repo_root().join("tests/fixtures/range-weighting/range_weighting.csv");
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut n_rows = 0;
+    for line in text.lines().skip(1) {
+        let v: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
+        let (gate_length, pulse_width, s, w, a, b, mass) =
+            (v[0], v[1], v[2], v[3], v[4], v[5], v[6]);
+        assert_close(
+            weighting::range_weight(s, gate_length, pulse_width),
+            w,
+            1e-14,
+            1e-10,
+        );
+        assert_close(
+            weighting::range_weight_mass(a, b, gate_length, pulse_width),
+            mass,
+            1e-13,
+            1e-9,
+        );
+        n_rows += 1;
+    }
+    assert_eq!(n_rows, 28);
+}
+
+#[test]
+fn beams_on_point_clouds_stop_at_gaps_and_the_cloud_edge() {
+    // A 2 m lattice with a hole (no points) from x = 60 to 80 m: an eastward beam stops where
+    // the nearest point is farther than twice the typical spacing; a westward one at x = 0.
+    let mut points = Vec::new();
+    for j in 0..21 {
+        for i in 0..61 {
+            let p = [i as f64 * 2.0, j as f64 * 2.0];
+            if !(60.0..=80.0).contains(&p[0]) || j < 3 {
+                points.push(p);
+            }
+        }
+    }
+    let mut site = grid_site(Plane::Xy, 1, 1, 1.0, uvw());
+    site.domain = Domain::Points(PointCloud {
+        weight: vec![4.0; points.len()],
+        points,
+    });
+    site.kinds = vec![lidar(&[(90.0, 0.0), (270.0, 0.0)], 10.0, 3)];
+    site.candidates = vec![candidate("cloud-mast", [30.0, 20.0], vec![0])];
+    let traces = beam_traces(&site, 0, 0);
+    assert_eq!(traces[0].stop, BeamStop::Solid);
+    // Nearest point beyond 4 m once x > 58 + 4 = 62 m, i.e. 32 m of range.
+    assert_close(traces[0].end_range, 32.0, 1e-6, 0.0);
+    assert_eq!(traces[1].stop, BeamStop::DomainEdge);
+    assert_close(traces[1].end_range, 30.0, 1e-9, 0.0);
+    let zero: FieldFn = Box::new(|_, _| 0.0);
+    let basis = field_basis(&site, &zero, &[linear_component(0)]);
+    let set = build_blocks(&site, &basis).unwrap();
+    let kept: usize = traces.iter().map(|t| t.gate_ranges.len()).sum();
+    assert_eq!(set.blocks[0].n_rows(), kept);
+    assert_consistent(&set.blocks[0], &basis);
+}

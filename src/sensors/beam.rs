@@ -82,23 +82,12 @@ pub(crate) struct FieldGeometry<'a> {
 
 impl<'a> FieldGeometry<'a> {
     pub fn new(site: &'a Site) -> Self {
-        let (cloud_index, bbox) = match &site.domain {
-            Domain::Grid(g) => (
-                None,
-                [
-                    g.origin,
-                    [
-                        g.origin[0] + (g.nx - 1) as f64 * g.spacing[0],
-                        g.origin[1] + (g.ny - 1) as f64 * g.spacing[1],
-                    ],
-                ],
-            ),
-            Domain::Points(c) => {
-                let index = CloudIndex::new(&c.points);
-                let bbox = index.bbox;
-                (Some(index), bbox)
-            }
+        let cloud_index = match &site.domain {
+            Domain::Grid(_) => None,
+            Domain::Points(c) => Some(CloudIndex::new(&c.points)),
         };
+        let (lo, hi) = site.domain.extent();
+        let bbox = [lo, hi];
         FieldGeometry {
             site,
             cloud_index,
