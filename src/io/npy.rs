@@ -664,12 +664,30 @@ impl SnapshotSource for NpySnapshots {
                 .read_exact(&mut bytes)
                 .map_err(|e| IoError::file(&self.path, e))?;
             let dst = &mut out[row * width..(row + 1) * width];
-            for (col, (slot, b)) in dst.iter_mut().zip(bytes.chunks_exact(size)).enumerate() {
-                let value = self.header.dtype.decode(b);
-                if !value.is_finite() {
-                    return Err(self.bad_value(time_idx, dofs.start + col, value));
+            // One loop per dtype so the hot loop has no per-value dispatch.
+            match self.header.dtype {
+                NpyDtype::F8 => {
+                    for (slot, b) in dst.iter_mut().zip(bytes.chunks_exact(8)) {
+                        let mut raw = [0u8; 8];
+                        raw.copy_from_slice(b);
+                        *slot = f64::from_le_bytes(raw);
+                    }
                 }
-                *slot = value;
+                NpyDtype::F4 => {
+                    for (slot, b) in dst.iter_mut().zip(bytes.chunks_exact(4)) {
+                        let mut raw = [0u8; 4];
+                        raw.copy_from_slice(b);
+                        *slot = f64::from(f32::from_le_bytes(raw));
+                    }
+                }
+                other => {
+                    for (slot, b) in dst.iter_mut().zip(bytes.chunks_exact(size)) {
+                        *slot = other.decode(b);
+                    }
+                }
+            }
+            if let Some(col) = dst.iter().position(|v| !v.is_finite()) {
+                return Err(self.bad_value(time_idx, dofs.start + col, dst[col]));
             }
         }
         Ok(())

@@ -306,7 +306,13 @@ fn read_points(
     let path = s.req_file("file", root, "a CSV of x, y (or x, z), weight")?;
     let t = super::csv_in::CsvTable::read(&path)?;
     let [ax, ay] = axis_names(plane);
-    t.check_columns(&[ax, ay, "weight"], &[])?;
+    // The coordinate off the plane (z of a plan-view cloud, y of a slice) may be present,
+    // as CFD exports write it; it is not used.
+    let off_plane = match plane {
+        Plane::Xy => "z",
+        Plane::Xz => "y",
+    };
+    t.check_columns(&[ax, ay, "weight"], &[off_plane])?;
     let (cx, cy, cw) = (t.col_req(ax)?, t.col_req(ay)?, t.col_req("weight")?);
     let mut cloud = PointCloud {
         points: Vec::with_capacity(t.n_rows()),
