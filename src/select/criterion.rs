@@ -80,6 +80,11 @@ impl InfoState {
         self.u.len() / self.n_modes
     }
 
+    /// All columns of `U`, one after another (`n_u × n_modes`, row-major).
+    pub fn u_all(&self) -> &[f64] {
+        &self.u
+    }
+
     /// Column `j` of `U`.
     pub fn u_col(&self, j: usize) -> &[f64] {
         &self.u[j * self.n_modes..(j + 1) * self.n_modes]

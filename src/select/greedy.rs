@@ -3,8 +3,8 @@
 //!
 //! D uses lazy evaluation (Minoux 1978, "accelerated greedy"): the D gain
 //! `log det(I + B P Bᵀ)` is submodular (it is 2 × a Gaussian mutual information), so a gain
-//! computed earlier is an upper bound on the gain now. A max-heap holds these stale bounds; only
-//! the top is brought up to date, and it is chosen once it is fresh. Bringing a block up to date
+//! computed earlier is an upper bound on the gain now. Only blocks whose stale bound could still
+//! beat the best fresh gain are brought up to date (batched search in `lazy.rs`). Bringing a block up to date
 //! applies only the posterior columns added since its last refresh (`S ← S − (B u)(B u)ᵀ` on
 //! its cached `S = I + B P Bᵀ`), so a whole run costs O(k·n·r) at worst and far less in
 //! practice; there is never a factorisation per candidate. A and E gains are not submodular,
@@ -15,12 +15,15 @@
 //! block and by the plain greedy within budget; the best of the three is returned, which keeps
 //! the ½(1 − 1/e) guarantee of Khuller, Moss & Naor (1999) and Krause & Guestrin (2005).
 
-use std::cmp::{Ordering, Reverse};
-use std::collections::BinaryHeap;
+use std::cmp::Ordering;
+
+use rayon::prelude::*;
 
 use super::constraints::Feasibility;
 use super::criterion::{evaluate_set, Criterion, InfoState};
 use super::dense::{symmetric_eigen, symmetric_min_eigenvalue};
+use super::lazy::{lazy_argmax, Refresh};
+use super::pending::subtract_pending_squares;
 use super::problem::Problem;
 use super::rows::dot;
 
@@ -99,9 +102,8 @@ impl LazyGains {
         }
     }
 
-    /// Gain of block `b` from its cached `S` (exact only when `stamp[b] == state.n_u()`).
-    fn gain(&self, b: usize) -> f64 {
-        let s = &self.s[self.s_start[b]..self.s_start[b + 1]];
+    /// D gain `log det S` from a cached `S` (row-major `p × p`).
+    fn gain_of(s: &[f64]) -> f64 {
         if s.len() == 1 {
             return s[0].max(1.0).ln();
         }
@@ -109,12 +111,35 @@ impl LazyGains {
         super::dense::spd_log_det(s, p).unwrap_or(0.0).max(0.0)
     }
 
-    /// Applies the posterior columns added since the last refresh of block `b`.
-    fn refresh(&mut self, problem: &Problem, state: &InfoState, b: usize) -> f64 {
+    fn gain(&self, b: usize) -> f64 {
+        Self::gain_of(&self.s[self.s_start[b]..self.s_start[b + 1]])
+    }
+
+    /// `S` of block `b` brought up to date with the posterior columns added since its stamp;
+    /// returns the new stamp. A single-row block stops early once `S < threshold`.
+    fn updated(
+        &self,
+        problem: &Problem,
+        state: &InfoState,
+        b: usize,
+        s: &mut [f64],
+        threshold: f64,
+    ) -> usize {
         let r = problem.n_modes();
         let block = problem.rows.block(b);
         let p = block.len() / r;
-        let s = &mut self.s[self.s_start[b]..self.s_start[b + 1]];
+        s.copy_from_slice(&self.s[self.s_start[b]..self.s_start[b + 1]]);
+        let n_u = state.n_u();
+        if p == 1 {
+            for j in self.stamp[b]..n_u {
+                let v = dot(block, state.u_col(j));
+                s[0] -= v * v;
+                if s[0] < threshold && j + 1 < n_u {
+                    return j + 1;
+                }
+            }
+            return n_u;
+        }
         let mut v = vec![0.0; p];
         for j in self.stamp[b]..state.n_u() {
             let u = state.u_col(j);
@@ -127,8 +152,102 @@ impl LazyGains {
                 }
             }
         }
-        self.stamp[b] = state.n_u();
-        self.gain(b)
+        n_u
+    }
+}
+
+/// Refreshes below this many items run on one thread (rayon overhead).
+const PARALLEL_MIN: usize = 2048;
+
+/// The greedy's side of the lazy arg-max: keys are D gains (or gains per unit cost).
+struct GainSource<'a> {
+    problem: &'a Problem,
+    state: &'a InfoState,
+    lazy: &'a mut LazyGains,
+    per_cost: bool,
+    floor: f64,
+}
+
+impl GainSource<'_> {
+    fn key(&self, gain: f64, b: usize) -> f64 {
+        if self.per_cost {
+            gain / self.problem.block_cost[b].max(self.floor)
+        } else {
+            gain
+        }
+    }
+}
+
+impl Refresh for GainSource<'_> {
+    fn stamps(&self) -> (&[usize], usize) {
+        (&self.lazy.stamp, self.state.n_u())
+    }
+
+    fn refresh(&mut self, items: &[usize], threshold: f64, out: &mut [f64]) {
+        let (problem, state) = (self.problem, self.state);
+        let lazy = &*self.lazy;
+        if problem.rows.all_single() {
+            let stamps: Vec<usize> = items.iter().map(|&b| lazy.stamp[b]).collect();
+            let current: Vec<f64> = items.iter().map(|&b| lazy.s[b]).collect();
+            let values =
+                subtract_pending_squares(&problem.rows, state.u_all(), items, &stamps, &current);
+            for ((&b, v), o) in items.iter().zip(values).zip(out.iter_mut()) {
+                self.lazy.s[b] = v;
+                self.lazy.stamp[b] = state.n_u();
+                *o = self.key(LazyGains::gain_of(&[v]), b);
+            }
+            return;
+        }
+        let single = items
+            .iter()
+            .all(|&b| lazy.s_start[b + 1] - lazy.s_start[b] == 1);
+        if single {
+            // Key threshold → threshold on S = e^gain (keys are gains, or gains per cost).
+            let s_threshold = |b: usize| {
+                let gain = if self.per_cost {
+                    threshold * problem.block_cost[b].max(self.floor)
+                } else {
+                    threshold
+                };
+                if gain == f64::NEG_INFINITY {
+                    f64::NEG_INFINITY
+                } else {
+                    gain.exp()
+                }
+            };
+            let compute = |&b: &usize| {
+                let mut s = [0.0];
+                let stamp = lazy.updated(problem, state, b, &mut s, s_threshold(b));
+                (s[0], stamp)
+            };
+            let values: Vec<(f64, usize)> = if items.len() >= PARALLEL_MIN {
+                items.par_iter().map(compute).collect()
+            } else {
+                items.iter().map(compute).collect()
+            };
+            for ((&b, (v, stamp)), o) in items.iter().zip(values).zip(out.iter_mut()) {
+                self.lazy.s[self.lazy.s_start[b]] = v;
+                self.lazy.stamp[b] = stamp;
+                *o = self.key(LazyGains::gain_of(&[v]), b);
+            }
+        } else {
+            let compute = |&b: &usize| {
+                let mut s = vec![0.0; lazy.s_start[b + 1] - lazy.s_start[b]];
+                let stamp = lazy.updated(problem, state, b, &mut s, f64::NEG_INFINITY);
+                (s, stamp)
+            };
+            let values: Vec<(Vec<f64>, usize)> = if items.len() >= PARALLEL_MIN {
+                items.par_iter().map(compute).collect()
+            } else {
+                items.iter().map(compute).collect()
+            };
+            for ((&b, (v, stamp)), o) in items.iter().zip(values).zip(out.iter_mut()) {
+                let range = self.lazy.s_start[b]..self.lazy.s_start[b + 1];
+                self.lazy.s[range].copy_from_slice(&v);
+                self.lazy.stamp[b] = stamp;
+                *o = self.key(LazyGains::gain_of(&v), b);
+            }
+        }
     }
 }
 
@@ -145,38 +264,44 @@ fn lazy_greedy_d(
     let mut state = kept_state(problem, &feas, start, false);
     let mut lazy = LazyGains::new(problem);
     let floor = cost_floor(problem);
-    let key = |gain: f64, b: usize| {
-        if per_cost {
-            gain / problem.block_cost[b].max(floor)
-        } else {
-            gain
-        }
-    };
-    let mut heap: BinaryHeap<(Key, Reverse<usize>)> = (0..problem.n_blocks())
-        .filter(|&b| feas.admissible(b))
-        .map(|b| (Key(key(lazy.gain(b), b)), Reverse(b)))
+    let mut bound: Vec<f64> = (0..problem.n_blocks())
+        .map(|b| {
+            if !feas.can_add(b) {
+                return f64::NEG_INFINITY;
+            }
+            let gain = lazy.gain(b);
+            if per_cost {
+                gain / problem.block_cost[b].max(floor)
+            } else {
+                gain
+            }
+        })
         .collect();
     let (max_count, mut remaining) = match limit {
         Limit::Count(k) => (k, f64::INFINITY),
         Limit::Budget(budget) => (usize::MAX, budget),
     };
     let mut order = Vec::new();
+    let mut hot = Vec::new();
     while order.len() < max_count {
-        let Some((_, Reverse(b))) = heap.pop() else {
+        let mut source = GainSource {
+            problem,
+            state: &state,
+            lazy: &mut lazy,
+            per_cost,
+            floor,
+        };
+        let Some(b) = lazy_argmax(&mut bound, &mut hot, &mut source) else {
             break;
         };
+        bound[b] = f64::NEG_INFINITY;
         if !feas.can_add(b) || problem.block_cost[b] > remaining {
             continue; // constraints and the remaining budget only tighten: drop for good
         }
-        if lazy.stamp[b] == state.n_u() {
-            state.add_block(problem.rows.block(b));
-            feas.add(b);
-            remaining -= problem.block_cost[b];
-            order.push(b);
-        } else {
-            let gain = lazy.refresh(problem, &state, b);
-            heap.push((Key(key(gain, b)), Reverse(b)));
-        }
+        state.add_block(problem.rows.block(b));
+        feas.add(b);
+        remaining -= problem.block_cost[b];
+        order.push(b);
     }
     order
 }

@@ -21,6 +21,8 @@ mod criterion;
 mod dense;
 mod exchange;
 mod greedy;
+mod lazy;
+mod pending;
 mod problem;
 mod qr;
 mod rank;

@@ -7,19 +7,19 @@
 //! orthonormalised rows to `Q` (classical Gram–Schmidt, two passes). For single-row blocks this
 //! is exactly the pivot order of `dgeqp3` up to rounding at near-ties.
 //!
-//! Residual norms only ever shrink, so a norm computed earlier is an upper bound: a max-heap
-//! holds these stale norms, and only the top is brought up to date (by the `Q` columns added
-//! since its last refresh) until the top is fresh. Only `k` pivots are computed, never a full
+//! Residual norms only ever shrink, so a norm computed earlier is an upper bound: only blocks
+//! whose stale norm could still beat the best fresh one are brought up to date, by the `Q`
+//! columns added since their last refresh (batched search in `lazy.rs`). Only `k` pivots are computed, never a full
 //! factorisation. When a refreshed norm has lost most of its digits to cancellation it is
 //! recomputed from the explicit residual, as LAPACK does.
 //!
 //! QR stops once the chosen rows span the whole mode space (every residual is round-off); the
 //! caller continues with the D-greedy rule (see `rank.rs`).
 
-use std::cmp::Reverse;
-use std::collections::BinaryHeap;
+use rayon::prelude::*;
 
-use super::greedy::Key;
+use super::lazy::{lazy_argmax, Refresh};
+use super::pending::subtract_pending_squares;
 use super::rows::{dot, CandidateRows};
 
 /// The pivots of a lazy pivoted QR.
@@ -77,6 +77,83 @@ impl Basis {
     }
 }
 
+/// The QR side of the lazy arg-max: bounds are squared residual norms.
+struct NormSource<'a> {
+    rows: &'a CandidateRows,
+    basis: &'a Basis,
+    original: &'a [f64],
+    norm_sq: &'a mut [f64],
+    stamp: &'a mut [usize],
+}
+
+impl NormSource<'_> {
+    /// Exact squared residual norm of block `b` now.
+    fn updated(&self, b: usize) -> f64 {
+        let r = self.rows.n_modes();
+        let block = self.rows.block(b);
+        let mut s = self.norm_sq[b];
+        let n_q = self.basis.n_q();
+        for j in self.stamp[b]..n_q {
+            let q = self.basis.q_col(j);
+            for row in block.chunks_exact(r) {
+                let c = dot(row, q);
+                s -= c * c;
+            }
+        }
+        self.checked(b, s)
+    }
+
+    /// `s` unless cancellation ate most of its digits; then the explicit residual norm².
+    fn checked(&self, b: usize, mut s: f64) -> f64 {
+        let r = self.rows.n_modes();
+        let block = self.rows.block(b);
+        if s < RECOMPUTE_FRACTION * self.original[b] {
+            // Most digits lost to cancellation: recompute from the explicit residual.
+            s = 0.0;
+            let mut scratch = vec![0.0; r];
+            for row in block.chunks_exact(r) {
+                scratch.copy_from_slice(row);
+                self.basis.project_out(&mut scratch);
+                s += dot(&scratch, &scratch);
+            }
+        }
+        s.max(0.0)
+    }
+}
+
+impl Refresh for NormSource<'_> {
+    fn stamps(&self) -> (&[usize], usize) {
+        (self.stamp, self.basis.n_q())
+    }
+
+    fn refresh(&mut self, items: &[usize], _threshold: f64, out: &mut [f64]) {
+        let this = &*self;
+        let values: Vec<f64> = if self.rows.all_single() {
+            let stamps: Vec<usize> = items.iter().map(|&b| this.stamp[b]).collect();
+            let current: Vec<f64> = items.iter().map(|&b| this.norm_sq[b]).collect();
+            let raw = subtract_pending_squares(this.rows, &this.basis.q, items, &stamps, &current);
+            items
+                .iter()
+                .zip(raw)
+                .map(|(&b, s)| this.checked(b, s))
+                .collect()
+        } else if items.len() >= PARALLEL_MIN {
+            items.par_iter().map(|&b| this.updated(b)).collect()
+        } else {
+            items.iter().map(|&b| this.updated(b)).collect()
+        };
+        let n_q = self.basis.n_q();
+        for ((&b, v), o) in items.iter().zip(values).zip(out.iter_mut()) {
+            self.norm_sq[b] = v;
+            self.stamp[b] = n_q;
+            *o = v;
+        }
+    }
+}
+
+/// Refreshes below this many items run on one thread (rayon overhead).
+const PARALLEL_MIN: usize = 2048;
+
 /// Lazy group-pivoted QR: up to `n_pick` blocks after the blocks in `start` (already chosen,
 /// projected out first). `accept(b)` is asked when `b` is the pivot; returning false drops it
 /// for good (constraints, budget). Blocks never offered to `accept` are never chosen.
@@ -99,46 +176,30 @@ pub fn lazy_pivoted_qr(
     let largest = original.iter().copied().fold(0.0, f64::max);
     let mut norm_sq = original.clone();
     let mut stamp = vec![0usize; n_blocks];
-    let mut in_start = vec![false; n_blocks];
-    start.iter().for_each(|&b| in_start[b] = true);
-    let mut heap: BinaryHeap<(Key, Reverse<usize>)> = (0..n_blocks)
-        .filter(|&b| !in_start[b])
-        .map(|b| (Key(norm_sq[b]), Reverse(b)))
-        .collect();
+    let mut bound = original.clone();
+    start.iter().for_each(|&b| bound[b] = f64::NEG_INFINITY);
     let mut out = QrOrder::default();
-    let mut scratch = vec![0.0; r];
+    let mut hot = Vec::new();
     while out.order.len() < n_pick {
-        let Some((_, Reverse(b))) = heap.pop() else {
-            break;
-        };
-        let n_q = basis.n_q();
-        if stamp[b] < n_q {
-            let block = rows.block(b);
-            let mut s = norm_sq[b];
-            for j in stamp[b]..n_q {
-                let q = basis.q_col(j);
-                for row in block.chunks_exact(r) {
-                    let c = dot(row, q);
-                    s -= c * c;
-                }
-            }
-            if s < RECOMPUTE_FRACTION * original[b] {
-                s = 0.0;
-                for row in block.chunks_exact(r) {
-                    scratch.copy_from_slice(row);
-                    basis.project_out(&mut scratch);
-                    s += dot(&scratch, &scratch);
-                }
-            }
-            norm_sq[b] = s.max(0.0);
-            stamp[b] = n_q;
-            heap.push((Key(norm_sq[b]), Reverse(b)));
-            continue;
-        }
-        if norm_sq[b] <= RANK_TOL * RANK_TOL * largest || basis.n_q() >= r {
+        if basis.n_q() >= r {
             out.rank_exhausted = true;
             break;
         }
+        let mut source = NormSource {
+            rows,
+            basis: &basis,
+            original: &original,
+            norm_sq: &mut norm_sq,
+            stamp: &mut stamp,
+        };
+        let Some(b) = lazy_argmax(&mut bound, &mut hot, &mut source) else {
+            break;
+        };
+        if norm_sq[b] <= RANK_TOL * RANK_TOL * largest {
+            out.rank_exhausted = true;
+            break;
+        }
+        bound[b] = f64::NEG_INFINITY;
         if !accept(b) {
             continue;
         }
