@@ -12,7 +12,7 @@
 use std::path::Path;
 use std::time::Instant;
 
-use crowsnest::basis::snapshots_method::accumulate_gram;
+use crowsnest::basis::snapshots_method::{accumulate_gram, gram_eigen};
 use crowsnest::basis::{pod, PodMethod, PodOptions, Rank};
 use crowsnest::io::{read_npy_f64, InMemorySnapshots, NpySnapshots, SnapshotSource};
 use faer::linalg::matmul::matmul;
@@ -99,6 +99,15 @@ fn memory(path: &Path) {
         assert_eq!(gram.gram.nrows(), n_snapshots);
     });
     let gram_flops = (n_dof * n_snapshots * (n_snapshots + 1)) as f64;
+
+    // Symmetric eigendecomposition of the T × T Gram matrix, the step between the passes.
+    let gram = accumulate_gram(&mut source, &weights, block, par, &mut |_| {}).expect("gram");
+    let (eigen_seconds, eigen_cpu) = best_of(2, || {
+        let (values, _) = gram_eigen(&gram.gram, par).expect("eigen");
+        assert_eq!(values.len(), n_snapshots);
+    });
+    drop(gram);
+    println!("eigendecomposition ({n_snapshots} x {n_snapshots}): {eigen_seconds:.3} s wall, {eigen_cpu:.2} s CPU");
 
     // Plain faer product of the same operands, full T × T output: 2·n·T² flops.
     let x = MatRef::from_column_major_slice(&source.data, n_dof, n_snapshots);
