@@ -11,4 +11,5 @@ mod select;
 mod sensors;
 mod site_load;
 mod synth;
+mod synth_demo;
 mod twin;

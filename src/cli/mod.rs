@@ -14,6 +14,7 @@ mod merge;
 mod plan;
 mod progress;
 mod score;
+pub mod synth;
 
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
 pub const EXIT_BAD_INPUT: u8 = 2;
@@ -56,6 +57,8 @@ pub enum Command {
     Score(score::ScoreArgs),
     /// The whole job: basis, ranked layouts by every method, twin scores, studies, report.
     Plan(plan::PlanArgs),
+    /// Generate the velocity snapshots of a `[synth]` site with the built-in 2-D flow solver.
+    Synth(synth::SynthArgs),
 }
 
 /// Runs crowsnest with the given arguments (the first is the program name).
@@ -95,6 +98,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Merge(args) => merge::run(args),
         Command::Score(args) => score::run(args),
         Command::Plan(args) => plan::run(args),
+        Command::Synth(args) => synth::run(args),
     }
 }
 
@@ -125,6 +129,7 @@ fn exit_code_for(err: &anyhow::Error) -> u8 {
                 .downcast_ref::<crate::sensors::SensorError>()
                 .is_some()
             || cause.downcast_ref::<BadArgument>().is_some()
+            || cause.downcast_ref::<crate::synth::SynthError>().is_some()
             || cause
                 .downcast_ref::<crate::twin::TwinError>()
                 .is_some_and(|e| e.is_bad_input())

@@ -35,5 +35,5 @@ pub use npy::{
 };
 pub use site::*;
 pub use site_flow::{open_snapshots, read_snapshot_csv};
-pub use site_load::load_site;
+pub use site_load::{load_site, load_site_for_synth};
 pub use snapshots::{InMemorySnapshots, SnapshotSource};

@@ -14,6 +14,13 @@ use super::npy::{check_shape, read_npy_header, shape_text, NpySnapshots};
 use super::site::*;
 use super::{InMemorySnapshots, IoError, SnapshotSource};
 
+/// Whether generated flow files (`[synth]` sites) may be missing when a site loads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Generated {
+    MustExist,
+    MayBeMissing,
+}
+
 pub(crate) fn read_flow(
     file: &Path,
     root: &Path,
@@ -21,12 +28,37 @@ pub(crate) fn read_flow(
     domain: &Domain,
     channels: &[Channel],
     warnings: &mut Vec<String>,
+    generated: Generated,
 ) -> Result<FlowSource, IoError> {
     match (top.opt_table("snapshots")?, top.opt_table("basis")?) {
         (Some(table), None) => {
             let s = Section::new(file, "snapshots", table, &["file", "dt"])?;
-            let path = s.req_file("file", root, "a .npy or .csv snapshot file")?;
             let dt = s.req_positive("dt", "the time between snapshots in s")?;
+            // Snapshots of a `[synth]` site are made by `crowsnest synth`: the generator may
+            // load the site before they exist, and everyone else gets told how to make them.
+            if top.opt_table("synth")?.is_some() {
+                let name = s.req_str("file", "a .npy snapshot file")?;
+                let path = root.join(name);
+                if !path.is_file() {
+                    if generated == Generated::MayBeMissing {
+                        return Ok(FlowSource::Snapshots(SnapshotFiles {
+                            path,
+                            dt,
+                            n_snapshots: 0,
+                        }));
+                    }
+                    return Err(s.err(
+                        "file",
+                        format!(
+                            "file {} not found; this site's snapshots are generated: run \
+                             `crowsnest synth {}` first",
+                            path.display(),
+                            root.display()
+                        ),
+                    ));
+                }
+            }
+            let path = s.req_file("file", root, "a .npy or .csv snapshot file")?;
             let n_snapshots = match extension(&path).as_str() {
                 "npy" => check_field_npy(&path, domain, channels, "T")?,
                 "csv" => {

@@ -14,7 +14,7 @@ use std::path::{Path, PathBuf};
 use super::keys::{did_you_mean, Section};
 use super::npy::{check_shape, read_npy_f64};
 use super::site::*;
-use super::site_flow::read_flow;
+use super::site_flow::{read_flow, Generated};
 use super::site_mounts::{read_candidates, read_existing, read_kinds};
 use super::zones::read_polygons;
 use super::IoError;
@@ -47,6 +47,16 @@ pub(crate) fn axis_names(plane: Plane) -> [&'static str; 2] {
 
 /// Loads and validates a site; `path` is the site directory or its `.toml` file.
 pub fn load_site(path: &Path) -> Result<Site, IoError> {
+    load(path, Generated::MustExist)
+}
+
+/// Like [`load_site`], but a `[synth]` site whose snapshot file does not exist yet loads with
+/// `n_snapshots = 0`: what `crowsnest synth` needs before it writes that file.
+pub fn load_site_for_synth(path: &Path) -> Result<Site, IoError> {
+    load(path, Generated::MayBeMissing)
+}
+
+fn load(path: &Path, generated: Generated) -> Result<Site, IoError> {
     let site_file = if path.is_dir() {
         path.join("site.toml")
     } else {
@@ -102,7 +112,15 @@ pub fn load_site(path: &Path) -> Result<Site, IoError> {
         .collect();
     let domain = read_domain(file, &root, &top, plane, &obstacles, &mut warnings)?;
     let channels = read_channels(file, &top, plane)?;
-    let flow = read_flow(file, &root, &top, &domain, &channels, &mut warnings)?;
+    let flow = read_flow(
+        file,
+        &root,
+        &top,
+        &domain,
+        &channels,
+        &mut warnings,
+        generated,
+    )?;
     let kinds = read_kinds(file, &top, plane, &channels)?;
     let candidates = read_candidates(
         file,

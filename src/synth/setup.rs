@@ -6,8 +6,8 @@
 //! Choices and their sources (also in `docs/synth.md`):
 //! - lattice spacing = the finer grid spacing (twice that with `quick`), so snapshots are
 //!   bilinear samples of the lattice at the site's nodes;
-//! - fastest mean speed → lattice velocity 0.03 (0.05 with `quick`): Ma ≈ 0.05 (0.09);
-//! - relaxation time from a cell Reynolds number `u h / ν = 10` plus the Smagorinsky model
+//! - fastest mean speed → lattice velocity 0.04 (0.06 with `quick`): Ma ≈ 0.07 (0.10);
+//! - relaxation time from a cell Reynolds number `u h / ν = 20` plus the Smagorinsky model
 //!   with C_S = 0.15 (the usual 0.1–0.2; Hou et al. 1996 use 0.17 — common practice);
 //! - gust ratios σ_v/σ_u = 0.75 and σ_w/σ_u = 0.5 for the neutral surface layer (Panofsky &
 //!   Dutton 1984, *Atmospheric Turbulence*, ch. 7, from memory), integral length 150 m
@@ -25,9 +25,9 @@ use super::units::LatticeUnits;
 use super::SynthError;
 
 /// Lattice velocity of the fastest mean wind (full run, quick run).
-const LATTICE_SPEED: [f64; 2] = [0.03, 0.05];
+const LATTICE_SPEED: [f64; 2] = [0.04, 0.06];
 /// Cell Reynolds number u·h/ν that sets the viscosity floor.
-const CELL_REYNOLDS: f64 = 10.0;
+const CELL_REYNOLDS: f64 = 20.0;
 const SMAGORINSKY: f64 = 0.15;
 /// TRT Λ = 1/4: the choice with the widest stability range for advection-dominated flow
 /// (Ginzburg et al. 2008); the validation tests use Λ = 3/16 as well.
