@@ -14,9 +14,8 @@ use crowsnest::io::{
     Site, SnapshotFiles, Zone,
 };
 use crowsnest::render::{
-    self, palette, CurveChart, EnergyChart, FieldLayer, Figure, MapBeam, MapSensor, ModeGallery,
-    ParetoChart, ParetoGroup, ParetoPoint, RefLine, Report, ReportFigure, Series, SiteMap, Study,
-    Table,
+    self, palette, CurveChart, EnergyChart, FieldLayer, Figure, ModeGallery, ParetoChart,
+    ParetoGroup, ParetoPoint, RefLine, Report, ReportFigure, Series, SiteMap, Study, Table,
 };
 use crowsnest::select::{Layout, LayoutEntry};
 
@@ -101,7 +100,7 @@ fn quay_site() -> Site {
                             elevation_deg: 0.0,
                         },
                         BeamDirection {
-                            azimuth_deg: 120.0,
+                            azimuth_deg: 330.0,
                             elevation_deg: 0.0,
                         },
                     ],
@@ -210,34 +209,15 @@ fn quay_layout() -> Layout {
     }
 }
 
-fn quay_beams(site: &Site) -> Vec<MapBeam> {
-    // Beams from crane-1 at azimuth 60° and 120°, gates every 40 m from 50 m.
-    let o = site.candidates[5].position;
-    [60.0f64, 120.0]
-        .iter()
-        .map(|az| {
-            let (s, c) = (az.to_radians().sin(), az.to_radians().cos());
-            let gates: Vec<[f64; 2]> = (0..5)
-                .map(|k| 50.0 + 40.0 * k as f64)
-                .map(|r| [o[0] + r * s, o[1] + r * c])
-                .collect();
-            MapBeam {
-                kind_idx: 1,
-                origin: o,
-                stop: [o[0] + 230.0 * s, o[1] + 230.0 * c],
-                gates,
-            }
-        })
-        .collect()
-}
-
 fn site_map(site: &Site) -> SiteMap<'_> {
     let basis = quay_basis(site);
-    let mut map = SiteMap::new(site, "test-quay: recommended layout over field spread");
-    map.background = Some(FieldLayer::std_from_basis(site, &basis, &[0, 1]));
-    map.sensors = MapSensor::from_layout(&quay_layout());
-    map.beams = quay_beams(site);
-    map
+    let background = Some(FieldLayer::std_from_basis(site, &basis, &[0, 1]));
+    SiteMap::for_layout(
+        site,
+        "test-quay: recommended layout over field spread",
+        &quay_layout(),
+        background,
+    )
 }
 
 fn count_chart() -> CurveChart {
@@ -482,6 +462,21 @@ fn site_map_renders_layers_in_svg_and_png() {
     ] {
         assert!(svg.contains(label), "site map SVG lacks {label}");
     }
+    // Beams come from sensors::beam_traces: the 330° beam from crane-1 (360, 80) runs into
+    // the warehouse (250–340 × 150–210) and keeps fewer than its 5 gates; the 60° one is clear.
+    assert_eq!(map.beams.len(), 2);
+    let blocked = &map.beams[1];
+    assert!(
+        blocked.gates.len() < 5,
+        "{} gates kept",
+        blocked.gates.len()
+    );
+    let [x, y] = blocked.stop;
+    assert!(
+        (240.0..=350.0).contains(&x) && (140.0..=215.0).contains(&y),
+        "stop at ({x}, {y})"
+    );
+    assert_eq!(map.beams[0].gates.len(), 5);
     // Equal aspect: 600 m × 300 m domain drawn at one scale.
     let (w, h) = map.size();
     assert!(w == 880 && h > 300, "{w}×{h}");
@@ -866,4 +861,55 @@ fn xml_check_catches_misnested_tags() {
 #[should_panic(expected = "bare &")]
 fn xml_check_catches_bare_ampersand() {
     assert_well_formed_xml("<svg><text>a & b</text></svg>");
+}
+
+#[test]
+fn fine_grids_are_merged_into_blocks_so_svg_stays_small() {
+    // 300 × 150 nodes at 2 m: 45 000 cells would be ~4.5 MB of <rect>; blocks of at least
+    // 3 px (site map) and 5 px (gallery panels) keep each figure well under 1 MB.
+    let mut site = quay_site();
+    let (nx, ny) = (300usize, 150usize);
+    site.domain = Domain::Grid(Grid {
+        origin: [1.0, 1.0],
+        spacing: [2.0, 2.0],
+        nx,
+        ny,
+        solid: vec![false; nx * ny],
+        weight: vec![4.0; nx * ny],
+    });
+    let values: Vec<f64> = (0..nx * ny)
+        .map(|k| ((k % nx) as f64 * 0.37).sin() * ((k / nx) as f64 * 0.21).cos())
+        .collect();
+    let mut map = SiteMap::new(&site, "fine grid");
+    map.background = Some(FieldLayer {
+        values: values.clone(),
+        label: "noise".into(),
+        unit: String::new(),
+        diverging: true,
+    });
+    let svg = render::to_svg(&map, "fine").unwrap();
+    assert!(svg.len() < 1_000_000, "site map SVG is {} bytes", svg.len());
+    assert!(
+        svg.matches("<rect").count() > 2_000,
+        "the field must still be drawn in detail"
+    );
+    let gallery = ModeGallery {
+        site: &site,
+        title: "fine".into(),
+        panels: (0..6)
+            .map(|k| render::ModePanel {
+                caption: format!("mode {k}"),
+                layer: FieldLayer {
+                    values: values.clone(),
+                    label: String::new(),
+                    unit: String::new(),
+                    diverging: true,
+                },
+            })
+            .collect(),
+        n_cols: 3,
+        width: 880,
+    };
+    let svg = render::to_svg(&gallery, "fine-gallery").unwrap();
+    assert!(svg.len() < 1_000_000, "gallery SVG is {} bytes", svg.len());
 }

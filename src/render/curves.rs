@@ -210,6 +210,34 @@ impl CurveChart {
     }
 }
 
+/// Tick values for a log axis over `[lo, hi]`: 1-2-5 in each decade, or every integer
+/// multiple when the range spans less than a decade (plotters alone labels only powers of 10).
+pub fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    if lo.is_nan() || hi.is_nan() || lo <= 0.0 || hi <= lo {
+        return Vec::new();
+    }
+    let pick = |mantissas: &[f64]| -> Vec<f64> {
+        let mut out = Vec::new();
+        let mut decade = 10f64.powf(lo.log10().floor());
+        while decade <= hi {
+            for m in mantissas {
+                let v = m * decade;
+                if v >= lo * (1.0 - 1e-12) && v <= hi * (1.0 + 1e-12) {
+                    out.push(v);
+                }
+            }
+            decade *= 10.0;
+        }
+        out
+    };
+    let coarse = pick(&[1.0, 2.0, 5.0]);
+    if coarse.len() >= 3 {
+        coarse
+    } else {
+        pick(&[1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0])
+    }
+}
+
 const TITLE_H: u32 = 40;
 const MARGIN: u32 = 14;
 const Y_LABEL_W: u32 = 78;
@@ -237,6 +265,20 @@ impl Figure for CurveChart {
             (w - 2 * MARGIN, self.plot_height + X_LABEL_H),
         );
         let ((x0, x1), (y0, y1)) = self.ranges();
+        // Sweeps use a handful of discrete settings: label exactly those on a log axis.
+        let mut settings: Vec<f64> = self
+            .series
+            .iter()
+            .flat_map(|s| s.x.iter().copied())
+            .filter(|v| v.is_finite() && *v > 0.0)
+            .collect();
+        settings.sort_by(f64::total_cmp);
+        settings.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs());
+        let x_log_ticks = if (2..=10).contains(&settings.len()) {
+            settings
+        } else {
+            log_ticks(x0, x1)
+        };
         macro_rules! with_chart {
             ($xr:expr, $yr:expr) => {{
                 let mut chart = ChartBuilder::on(&chart_area)
@@ -263,9 +305,18 @@ impl Figure for CurveChart {
         }
         match (self.log_x, self.log_y) {
             (false, false) => with_chart!(x0..x1, y0..y1),
-            (true, false) => with_chart!((x0..x1).log_scale(), y0..y1),
-            (false, true) => with_chart!(x0..x1, (y0..y1).log_scale()),
-            (true, true) => with_chart!((x0..x1).log_scale(), (y0..y1).log_scale()),
+            (true, false) => with_chart!(
+                (x0..x1).log_scale().with_key_points(x_log_ticks.clone()),
+                y0..y1
+            ),
+            (false, true) => with_chart!(
+                x0..x1,
+                (y0..y1).log_scale().with_key_points(log_ticks(y0, y1))
+            ),
+            (true, true) => with_chart!(
+                (x0..x1).log_scale().with_key_points(x_log_ticks.clone()),
+                (y0..y1).log_scale().with_key_points(log_ticks(y0, y1))
+            ),
         }
         let legend_y = (TITLE_H + self.plot_height + X_LABEL_H + 6) as i32;
         figure::draw_legend_rows(
@@ -348,5 +399,20 @@ impl CurveChart {
         }
         let _ = SMALL_PX;
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn log_ticks_follow_one_two_five() {
+        let t = log_ticks(0.2, 5.0);
+        assert_eq!(t.len(), 5, "{t:?}");
+        assert!((t[0] - 0.2).abs() < 1e-12 && (t[4] - 5.0).abs() < 1e-12);
+        // Less than a decade: finer steps.
+        assert!(!log_ticks(1.1, 1.9).is_empty());
+        assert!(log_ticks(-1.0, 2.0).is_empty());
     }
 }

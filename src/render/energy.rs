@@ -95,7 +95,7 @@ impl Figure for EnergyChart {
             .collect();
         figure::draw_line(root, &pts, line, 2, false)?;
         for p in pts.iter().step_by(n.div_ceil(20).max(1)) {
-            figure::draw_marker(root, *p, Marker::Circle, 3.5, line, PAPER)?;
+            figure::draw_marker(root, *p, Marker::Circle, 4.5, line, line)?;
         }
         if self.n_kept > 0 && self.n_kept <= n {
             let x = self.n_kept as f64 + 0.5;

@@ -197,17 +197,22 @@ impl MapFrame {
     }
 }
 
+/// Most dots drawn for a point-cloud background.
+pub const MAX_DOTS: usize = 20_000;
+
 /// A map chart in plane metres.
 pub type MapChart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
 
-/// Draws the background layer: cell rectangles on grids (neighbouring cells of the same
-/// quantised colour merged into one rectangle, which keeps SVG small), dots on point clouds.
+/// Draws the background layer: cell rectangles on grids (cells below `min_cell_px` pixels
+/// merged into blocks, and neighbours of the same quantised colour into one rectangle, which
+/// keeps SVG small), dots on point clouds (at most [`MAX_DOTS`], evenly thinned).
 pub fn draw_field<DB>(
     chart: &mut MapChart<'_, DB>,
     site: &Site,
     layer: &FieldLayer,
     map: &ColourMap,
     px_per_m: f64,
+    min_cell_px: f64,
 ) -> DrawResult
 where
     DB: DrawingBackend,
@@ -228,49 +233,63 @@ where
     match &site.domain {
         Domain::Grid(g) => {
             let (dx, dy) = (g.spacing[0], g.spacing[1]);
-            // Each cell reaches one pixel into its right and upper neighbours, which are drawn
-            // later: a browser scaling the SVG then shows no hairline seams between cells.
-            let overlap = 1.0 / px_per_m.max(1e-12);
-            let mut rects = Vec::new();
-            for j in 0..g.ny {
-                let y = g.origin[1] + j as f64 * dy;
-                let mut i = 0;
-                while i < g.nx {
-                    let idx = j * g.nx + i;
-                    let q = if g.solid[idx] {
-                        Some(-1)
-                    } else {
-                        level(layer.values[idx])
-                    };
-                    let mut i_end = i + 1;
-                    while i_end < g.nx {
-                        let k = j * g.nx + i_end;
-                        let qk = if g.solid[k] {
-                            Some(-1)
-                        } else {
-                            level(layer.values[k])
-                        };
-                        if qk != q {
-                            break;
+            // Cells smaller than `min_cell_px` are merged into blocks (mean of the fluid
+            // nodes; solid when most nodes are), which bounds the SVG size on fine grids.
+            let fx = ((min_cell_px / (dx * px_per_m)).ceil() as usize).max(1);
+            let fy = ((min_cell_px / (dy * px_per_m)).ceil() as usize).max(1);
+            let (ncx, ncy) = (g.nx.div_ceil(fx), g.ny.div_ceil(fy));
+            let block = |ci: usize, cj: usize| -> Option<i32> {
+                let (mut sum, mut n_fluid, mut n_solid) = (0.0, 0usize, 0usize);
+                for j in cj * fy..((cj + 1) * fy).min(g.ny) {
+                    for i in ci * fx..((ci + 1) * fx).min(g.nx) {
+                        let k = j * g.nx + i;
+                        if g.solid[k] {
+                            n_solid += 1;
+                        } else if layer.values[k].is_finite() {
+                            sum += layer.values[k];
+                            n_fluid += 1;
                         }
-                        i_end += 1;
+                    }
+                }
+                if n_solid > n_fluid {
+                    Some(-1)
+                } else if n_fluid > 0 {
+                    level(sum / n_fluid as f64)
+                } else {
+                    None
+                }
+            };
+            // Each block reaches one pixel into its right and upper neighbours, which are
+            // drawn later: a browser scaling the SVG then shows no hairline seams.
+            let overlap = 1.0 / px_per_m.max(1e-12);
+            let edge_x = |ci: usize| g.origin[0] + ((ci * fx).min(g.nx) as f64 - 0.5) * dx;
+            let edge_y = |cj: usize| g.origin[1] + ((cj * fy).min(g.ny) as f64 - 0.5) * dy;
+            let mut rects = Vec::new();
+            for cj in 0..ncy {
+                let row: Vec<Option<i32>> = (0..ncx).map(|ci| block(ci, cj)).collect();
+                let (y0, mut y1) = (edge_y(cj), edge_y(cj + 1));
+                if cj + 1 < ncy {
+                    y1 += overlap;
+                }
+                let mut ci = 0;
+                while ci < ncx {
+                    let q = row[ci];
+                    let mut ci_end = ci + 1;
+                    while ci_end < ncx && row[ci_end] == q {
+                        ci_end += 1;
                     }
                     if let Some(q) = q {
                         let colour = if q < 0 { OBSTACLE } else { colour_of(q) };
-                        let x0 = g.origin[0] + (i as f64 - 0.5) * dx;
-                        let x1 = g.origin[0] + (i_end as f64 - 0.5) * dx;
-                        let x1 = if i_end < g.nx { x1 + overlap } else { x1 };
-                        let y1 = if j + 1 < g.ny {
-                            y + 0.5 * dy + overlap
-                        } else {
-                            y + 0.5 * dy
-                        };
+                        let mut x1 = edge_x(ci_end);
+                        if ci_end < ncx {
+                            x1 += overlap;
+                        }
                         rects.push(Rectangle::new(
-                            [(x0, y - 0.5 * dy), (x1, y1)],
+                            [(edge_x(ci), y0), (x1, y1)],
                             colour.filled(),
                         ));
                     }
-                    i = i_end;
+                    ci = ci_end;
                 }
             }
             chart.draw_series(rects)?;
@@ -278,9 +297,16 @@ where
         Domain::Points(p) => {
             let mean_w = p.weight.iter().sum::<f64>() / p.weight.len().max(1) as f64;
             let radius = (0.5 * mean_w.sqrt() * px_per_m).clamp(1.5, 7.0).round() as i32;
-            chart.draw_series(p.points.iter().zip(&layer.values).filter_map(|(q, v)| {
-                level(*v).map(|l| Circle::new((q[0], q[1]), radius, colour_of(l).filled()))
-            }))?;
+            let stride = p.points.len().div_ceil(MAX_DOTS).max(1);
+            chart.draw_series(
+                p.points
+                    .iter()
+                    .zip(&layer.values)
+                    .step_by(stride)
+                    .filter_map(|(q, v)| {
+                        level(*v).map(|l| Circle::new((q[0], q[1]), radius, colour_of(l).filled()))
+                    }),
+            )?;
         }
     }
     Ok(())

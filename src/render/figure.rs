@@ -117,6 +117,16 @@ pub fn write_png<F: Figure>(path: &Path, figure: &F) -> Result<(), RenderError> 
     Ok(())
 }
 
+/// Writes `<dir>/<stem>.svg` and `<dir>/<stem>.png` and returns the SVG text (for the
+/// report), so a figure is drawn once per format.
+pub fn write_figure<F: Figure>(dir: &Path, stem: &str, figure: &F) -> Result<String, RenderError> {
+    let svg = to_svg(figure, stem)?;
+    crate::io::atomic::write_bytes_atomic(&dir.join(format!("{stem}.svg")), svg.as_bytes())?;
+    let png = to_png(figure, stem)?;
+    crate::io::atomic::write_bytes_atomic(&dir.join(format!("{stem}.png")), &png)?;
+    Ok(svg)
+}
+
 /// Text style of `px` pixels per em in `colour`. plotters divides font sizes by 1.24 (its
 /// point-to-pixel convention) in every backend, so the request is scaled up by the same.
 pub fn text(px: f64, colour: RGBColor) -> TextStyle<'static> {
@@ -193,6 +203,13 @@ where
     DB: DrawingBackend,
     DB::ErrorType: 'static,
 {
+    if marker == Marker::Circle {
+        // plotters fills tiny polygons unevenly in bitmaps; its own circle is round.
+        let r = size.round() as i32;
+        root.draw(&Circle::new(at, r, fill.filled()))?;
+        root.draw(&Circle::new(at, r, edge.stroke_width(1)))?;
+        return Ok(());
+    }
     let pts: Vec<(i32, i32)> = marker
         .outline(size)
         .into_iter()
@@ -445,7 +462,7 @@ where
 {
     const BAR_W: i32 = 18;
     root.draw(&Text::new(title.to_string(), (x, y), text(SMALL_PX, INK)))?;
-    let top = y + 22;
+    let top = y + 28;
     for k in 0..bar_h {
         let t = 1.0 - (k as f64 + 0.5) / bar_h as f64;
         root.draw(&Rectangle::new(

@@ -101,7 +101,14 @@ impl Figure for ModeGallery<'_> {
                 frame.x_range.0..frame.x_range.1,
                 frame.y_range.0..frame.y_range.1,
             )?;
-            field::draw_field(&mut chart, self.site, &panel.layer, &TIDE, frame.px_per_m())?;
+            field::draw_field(
+                &mut chart,
+                self.site,
+                &panel.layer,
+                &TIDE,
+                frame.px_per_m(),
+                5.0,
+            )?;
             field::draw_obstacles_and_zones(&mut chart, self.site, frame.px_per_m())?;
             area.draw(&Rectangle::new(
                 [(0, 0), (frame.plot_w as i32 - 1, frame.plot_h as i32 - 1)],

@@ -26,7 +26,7 @@ pub mod sitemap;
 pub use curves::{CurveChart, RefLine, Series};
 pub use energy::EnergyChart;
 pub use field::FieldLayer;
-pub use figure::{to_png, to_rgb, to_svg, write_png, write_svg, Figure};
+pub use figure::{to_png, to_rgb, to_svg, write_figure, write_png, write_svg, Figure};
 pub use gallery::{ModeGallery, ModePanel};
 pub use pareto::{ParetoChart, ParetoGroup, ParetoPoint};
 pub use report::{write_report, Report, ReportFigure, Study, Table};

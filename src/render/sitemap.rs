@@ -58,6 +58,26 @@ pub struct MapBeam {
     pub gates: Vec<PlanePoint>,
 }
 
+impl MapBeam {
+    /// The beams of every beam-kind sensor in `sensors`, traced through the site by
+    /// `sensors::beam_traces` (stopped by solids, obstacles and the domain edge).
+    pub fn for_sensors(site: &Site, sensors: &[MapSensor]) -> Vec<MapBeam> {
+        sensors
+            .iter()
+            .flat_map(|s| {
+                crate::sensors::beam_traces(site, s.candidate_idx, s.kind_idx)
+                    .into_iter()
+                    .map(move |t| MapBeam {
+                        kind_idx: s.kind_idx,
+                        origin: t.origin,
+                        stop: t.end,
+                        gates: t.gate_centres,
+                    })
+            })
+            .collect()
+    }
+}
+
 /// The site map figure.
 #[derive(Debug, Clone)]
 pub struct SiteMap<'a> {
@@ -89,6 +109,23 @@ impl<'a> SiteMap<'a> {
             beams: Vec::new(),
             show_candidates: true,
             width: 880,
+        }
+    }
+
+    /// A map of `layout` on `site`: its sensors ranked, existing ones ringed, beams traced.
+    pub fn for_layout(
+        site: &'a Site,
+        title: impl Into<String>,
+        layout: &Layout,
+        background: Option<FieldLayer>,
+    ) -> Self {
+        let sensors = MapSensor::from_layout(layout);
+        let beams = MapBeam::for_sensors(site, &sensors);
+        SiteMap {
+            background,
+            sensors,
+            beams,
+            ..SiteMap::new(site, title)
         }
     }
 
@@ -166,7 +203,7 @@ impl Figure for SiteMap<'_> {
             _ => DUSK,
         };
         match &self.background {
-            Some(layer) => field::draw_field(&mut chart, site, layer, &colour_map, px_per_m)?,
+            Some(layer) => field::draw_field(&mut chart, site, layer, &colour_map, px_per_m, 3.0)?,
             None => field::draw_solid_cells(&mut chart, site)?,
         }
         chart.draw_series(std::iter::once(Rectangle::new(
@@ -299,7 +336,7 @@ impl SiteMap<'_> {
     fn side_panel_height(&self) -> u32 {
         let legend = TITLE_H + 26 + 26 * self.legend_entries().len() as u32;
         let bar = if self.background.is_some() {
-            16 + 22 + COLOUR_BAR_H + 20
+            16 + 28 + COLOUR_BAR_H + 20
         } else {
             0
         };
