@@ -13,6 +13,7 @@
 //! the truth snapshots only through `io::SnapshotSource`. It prints nothing and starts threads
 //! only through rayon's pool of the caller.
 
+pub mod batch;
 mod dense;
 pub mod enkf;
 mod error;

@@ -17,6 +17,7 @@ use rand_chacha::ChaCha20Rng;
 use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
+use super::batch::{gain_block, RUN_BLOCK};
 use super::dense::row_major;
 use super::enkf::{run_enkf, spread_trace, EnkfSettings};
 use super::kalman::{
@@ -64,8 +65,8 @@ pub struct Prepared {
     pub split: TimeSplit,
     pub model: ReducedModel,
     pub layout_id: String,
-    layout_hash: u64,
-    h_rm: Vec<f64>,
+    pub(super) layout_hash: u64,
+    pub(super) h_rm: Vec<f64>,
     coeffs_rm: Vec<f64>,
 }
 
@@ -192,8 +193,8 @@ fn mix(mut z: u64) -> u64 {
     z ^ (z >> 31)
 }
 
-const STREAM_BACKGROUND: u64 = 0;
-const STREAM_READINGS: u64 = 1;
+pub(super) const STREAM_BACKGROUND: u64 = 0;
+pub(super) const STREAM_READINGS: u64 = 1;
 const STREAM_ENSEMBLE: u64 = 2;
 
 /// The generator for `purpose` of run `run_idx`.
@@ -211,22 +212,22 @@ pub fn run_rng(
 }
 
 /// A contiguous span of the record (training or test) as the run loops see it.
-struct Span<'a> {
-    coeffs_rm: &'a [f64],
-    residual_sq: &'a [f64],
-    readings: &'a [f64],
-    n_steps: usize,
+pub(super) struct Span<'a> {
+    pub(super) coeffs_rm: &'a [f64],
+    pub(super) residual_sq: &'a [f64],
+    pub(super) readings: &'a [f64],
+    pub(super) n_steps: usize,
 }
 
 /// Everything shared by the runs of one setting.
-struct Shared<'a> {
-    prep: &'a Prepared,
-    settings: &'a RunSettings,
-    schedule: Schedule,
-    noise_sd: Vec<f64>,
-    noise_var: Vec<f64>,
-    gains: Option<GainSequence>,
-    background_sd: f64,
+pub(super) struct Shared<'a> {
+    pub(super) prep: &'a Prepared,
+    pub(super) settings: &'a RunSettings,
+    pub(super) schedule: Schedule,
+    pub(super) noise_sd: Vec<f64>,
+    pub(super) noise_var: Vec<f64>,
+    pub(super) gains: Option<GainSequence>,
+    pub(super) background_sd: f64,
 }
 
 impl Prepared {
@@ -271,6 +272,44 @@ pub fn run_monte_carlo(
             message: "the Kalman filter needs the linear model; use the enkf filter for the quadratic model".into(),
         });
     }
+    let (shared, nudge_strength) = shared_for(prep, settings)?;
+    let n_runs = settings.n_runs;
+    let done = AtomicUsize::new(0);
+    // Runs go in fixed blocks of RUN_BLOCK (by run index, not by thread): gain filters advance
+    // a whole block with small matrix products; the EnKF runs one by one.
+    let block = if settings.filter == FilterKind::Enkf {
+        1
+    } else {
+        RUN_BLOCK
+    };
+    let n_blocks = n_runs.div_ceil(block);
+    let blocks: Vec<Vec<RunOutcome>> = (0..n_blocks)
+        .into_par_iter()
+        .map(|block_idx| {
+            let runs = block_idx * block..((block_idx + 1) * block).min(n_runs);
+            let span = prep.test_span();
+            let out: Vec<RunOutcome> = if settings.filter == FilterKind::Enkf {
+                runs.map(|run_idx| one_run(&shared, &span, run_idx))
+                    .collect()
+            } else {
+                gain_block(&shared, &span, runs)
+            };
+            progress(
+                done.fetch_add(out.len(), Ordering::Relaxed) + out.len(),
+                n_runs,
+            );
+            out
+        })
+        .collect();
+    let runs: Vec<RunOutcome> = blocks.into_iter().flatten().collect();
+    Ok(summarise(&shared, runs, nudge_strength))
+}
+
+/// The per-setting work shared by every run: schedule, noise levels, background spread, gains.
+pub(super) fn shared_for<'a>(
+    prep: &'a Prepared,
+    settings: &'a RunSettings,
+) -> Result<(Shared<'a>, Option<f64>), TwinError> {
     let case = &prep.case;
     let n_modes = case.n_modes();
     let schedule = Schedule::new(&case.rows, case.dt_s, prep.split.n_test, settings.every)?;
@@ -333,22 +372,16 @@ pub fn run_monte_carlo(
         gains,
         background_sd,
     };
-
-    let done = AtomicUsize::new(0);
-    let n_runs = settings.n_runs;
-    let runs: Vec<RunOutcome> = (0..n_runs)
-        .into_par_iter()
-        .map(|run_idx| {
-            let outcome = one_run(&shared, &prep.test_span(), run_idx);
-            progress(done.fetch_add(1, Ordering::Relaxed) + 1, n_runs);
-            outcome
-        })
-        .collect();
-    Ok(summarise(&shared, runs, nudge_strength))
+    Ok((shared, nudge_strength))
 }
 
 /// Field RMSE of an estimate at `step` of `span`.
-fn step_rmse(span: &Span<'_>, step: usize, estimate: &[f64], field_norm: f64) -> (f64, f64) {
+pub(super) fn step_rmse(
+    span: &Span<'_>,
+    step: usize,
+    estimate: &[f64],
+    field_norm: f64,
+) -> (f64, f64) {
     let r = estimate.len();
     let truth = &span.coeffs_rm[step * r..(step + 1) * r];
     let modal: f64 = truth
@@ -362,7 +395,7 @@ fn step_rmse(span: &Span<'_>, step: usize, estimate: &[f64], field_norm: f64) ->
     )
 }
 
-fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut ChaCha20Rng) -> Vec<f64> {
+pub(super) fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut ChaCha20Rng) -> Vec<f64> {
     let r = shared.prep.case.n_modes();
     (0..r)
         .map(|j| {
@@ -373,7 +406,9 @@ fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut ChaCha20Rng) -> Ve
         .collect::<Vec<f64>>()
 }
 
-fn one_run(shared: &Shared<'_>, span: &Span<'_>, run_idx: usize) -> RunOutcome {
+/// One run on its own (the EnKF path, and the reference the batched gain filters are tested
+/// against).
+pub(super) fn one_run(shared: &Shared<'_>, span: &Span<'_>, run_idx: usize) -> RunOutcome {
     let prep = shared.prep;
     let s = shared.settings;
     let norm = prep.case.field_norm;
@@ -453,7 +488,19 @@ fn one_run(shared: &Shared<'_>, span: &Span<'_>, run_idx: usize) -> RunOutcome {
         ),
         (_, None) => unreachable!("gain filters always have gains"),
     };
-    let divergence = result.err();
+    finish_run(run_idx, rmse, free_rmse, modal_rmse, spread, result.err())
+}
+
+/// Assembles a run's outcome from its per-step curves.
+pub(super) fn finish_run(
+    run_idx: usize,
+    rmse: Vec<f64>,
+    free_rmse: Vec<f64>,
+    modal_rmse: Vec<f64>,
+    spread: Vec<f64>,
+    divergence: Option<Divergence>,
+) -> RunOutcome {
+    let n_steps = rmse.len();
     let time_mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
     let (mean_rmse, final_rmse) = if divergence.is_some() {
         (f64::NAN, f64::NAN)
@@ -486,7 +533,7 @@ fn one_run(shared: &Shared<'_>, span: &Span<'_>, run_idx: usize) -> RunOutcome {
 }
 
 /// Field RMSE of the model run without readings from `a0` (NaN once it stops being finite).
-fn free_run(model: &ReducedModel, span: &Span<'_>, a0: &[f64], norm: f64) -> Vec<f64> {
+pub(super) fn free_run(model: &ReducedModel, span: &Span<'_>, a0: &[f64], norm: f64) -> Vec<f64> {
     let mut state = a0.to_vec();
     let mut next = vec![0.0; a0.len()];
     let mut quad = vec![0.0; super::model::n_quadratic(a0.len())];
@@ -640,7 +687,62 @@ fn summarise(
     }
 }
 
+/// Mean and sample standard deviation of finite values (no sorting: the curves need no
+/// percentiles).
 fn mean_std(v: &[f64]) -> (f64, f64) {
-    let s = Summary::of(v);
-    (s.mean, s.std)
+    let n = v.len();
+    if n == 0 {
+        return (f64::NAN, f64::NAN);
+    }
+    let mean = v.iter().sum::<f64>() / n as f64;
+    let std = if n > 1 {
+        (v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1) as f64).sqrt()
+    } else {
+        0.0
+    };
+    (mean, std)
+}
+
+#[cfg(test)]
+#[allow(clippy::unwrap_used)]
+mod tests {
+    use super::*;
+    use crate::twin::testcase::{synthetic_case, SyntheticSpec};
+    use crate::twin::TwinSettings;
+
+    /// The batched block path gives the one-run path's numbers (same streams, same order of
+    /// draws; only the summation order of the small products differs).
+    #[test]
+    fn block_runs_match_single_runs() {
+        let case = synthetic_case(&SyntheticSpec {
+            interval_s: 2.0,
+            ..SyntheticSpec::default()
+        });
+        for filter in [
+            FilterKind::Kalman,
+            FilterKind::Oi,
+            FilterKind::Nudge,
+            FilterKind::Free,
+        ] {
+            let s = TwinSettings::new(filter)
+                .with_runs(5)
+                .unwrap()
+                .with_nudge_gain(NudgeGain::Fixed(0.5))
+                .unwrap();
+            let prep = prepare(case.clone(), "x", &s.model).unwrap();
+            let (shared, _) = shared_for(&prep, &s.run).unwrap();
+            let span = prep.test_span();
+            let block = gain_block(&shared, &span, 0..5);
+            for (run_idx, b) in block.iter().enumerate() {
+                let single = one_run(&shared, &span, run_idx);
+                for (x, y) in b.rmse.iter().zip(&single.rmse) {
+                    assert!(
+                        (x - y).abs() <= 1e-12 * (1.0 + y.abs()),
+                        "{filter:?} run {run_idx}: {x} vs {y}"
+                    );
+                }
+                assert!((b.free_mean_rmse - single.free_mean_rmse).abs() < 1e-12);
+            }
+        }
+    }
 }
