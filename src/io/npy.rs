@@ -742,6 +742,36 @@ mod tests {
     }
 
     #[test]
+    fn writer_matches_numpy_byte_for_byte() {
+        // Reference files from NumPy 2.4.6 `np.save`, made by
+        // tests/fixtures/npy/make_reference.py.
+        let fixtures = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/npy");
+        let dir = tempfile::tempdir().unwrap();
+        let a = dir.path().join("a.npy");
+        let values: Vec<f64> = (0..24).map(|v| f64::from(v) * 0.5).collect();
+        write_npy_f64(&a, &[2, 3, 4], &values).unwrap();
+        assert_eq!(
+            std::fs::read(&a).unwrap(),
+            std::fs::read(fixtures.join("f8_2x3x4.npy")).unwrap()
+        );
+        let b = dir.path().join("b.npy");
+        write_npy_f32(&b, &[3], &[0.0, 1.0, 2.0]).unwrap();
+        assert_eq!(
+            std::fs::read(&b).unwrap(),
+            std::fs::read(fixtures.join("f4_3.npy")).unwrap()
+        );
+        let c = dir.path().join("c.npy");
+        write_npy_f64(&c, &[], &[4.5]).unwrap();
+        assert_eq!(
+            std::fs::read(&c).unwrap(),
+            std::fs::read(fixtures.join("f8_scalar.npy")).unwrap()
+        );
+        let (shape, back) = read_npy_f64(&fixtures.join("f8_scalar.npy")).unwrap();
+        assert!(shape.is_empty());
+        assert_eq!(back, vec![4.5]);
+    }
+
+    #[test]
     fn versions_two_and_three_and_masks() {
         let dir = tempfile::tempdir().unwrap();
         let p = raw_npy(
