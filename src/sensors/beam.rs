@@ -430,3 +430,61 @@ pub(crate) fn gate_stencil(
     }
     merged
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn quarter_turns_are_exact_and_other_angles_follow_libm() {
+        for (deg, expected) in [
+            (0.0, (0.0, 1.0)),
+            (90.0, (1.0, 0.0)),
+            (180.0, (0.0, -1.0)),
+            (270.0, (-1.0, 0.0)),
+            (-90.0, (-1.0, 0.0)),
+            (450.0, (1.0, 0.0)),
+        ] {
+            let (s, c) = sin_cos_deg(deg);
+            // Exact: no leakage of a component the beam is perpendicular to.
+            assert!((s - expected.0).abs() < f64::MIN_POSITIVE, "{deg}");
+            assert!((c - expected.1).abs() < f64::MIN_POSITIVE, "{deg}");
+        }
+        let (s, c) = sin_cos_deg(30.0);
+        assert!((s - 0.5).abs() < 1e-15 && (c - 0.75f64.sqrt()).abs() < 1e-15);
+    }
+
+    #[test]
+    fn ray_crosses_the_nearest_edge_of_a_concave_outline() {
+        // An L-shaped outline; a ray along +x at y = 1 meets its edge x = 4 first.
+        let outline = [
+            [4.0, 0.0],
+            [8.0, 0.0],
+            [8.0, 4.0],
+            [6.0, 4.0],
+            [6.0, 2.0],
+            [4.0, 2.0],
+        ];
+        let ray = Ray::new(Plane::Xy, [0.0, 1.0], 90.0, 0.0);
+        let range = first_crossing(&ray, &outline, 100.0).expect("the ray meets the outline");
+        assert!((range - 4.0).abs() < 1e-12);
+        // Above the notch (y = 3) it first meets x = 6; pointing away it meets nothing.
+        let ray = Ray::new(Plane::Xy, [0.0, 3.0], 90.0, 0.0);
+        let range = first_crossing(&ray, &outline, 100.0).expect("the ray meets the outline");
+        assert!((range - 6.0).abs() < 1e-12);
+        let away = Ray::new(Plane::Xy, [0.0, 1.0], 270.0, 0.0);
+        assert!(first_crossing(&away, &outline, 100.0).is_none());
+        // Beyond the range limit it does not count.
+        assert!(first_crossing(&ray, &outline, 5.0).is_none());
+    }
+
+    #[test]
+    fn plan_view_elevation_shortens_the_horizontal_step() {
+        let ray = Ray::new(Plane::Xy, [0.0, 0.0], 0.0, 60.0);
+        assert!((ray.at(10.0)[1] - 5.0).abs() < 1e-12);
+        assert!((ray.los[2] - 0.75f64.sqrt()).abs() < 1e-15);
+        let vertical = Ray::new(Plane::Xy, [3.0, 4.0], 0.0, 90.0);
+        let p = vertical.at(50.0);
+        assert!((p[0] - 3.0).abs() < 1e-15 && (p[1] - 4.0).abs() < 1e-15);
+    }
+}
