@@ -102,9 +102,15 @@ pub struct PodOptions {
     pub rank: Rank,
     /// Degrees of freedom per streamed block; `None` picks about 16 MiB of snapshot data.
     pub block_size: Option<usize>,
-    /// Parallelism of the dense kernels; results are bit-identical for any thread count.
+    /// Parallelism of the dense kernels. The work split (not the pool size) decides the
+    /// rounding, so the default fixes it at [`KERNEL_PARTS`]: results are then bit-identical
+    /// whatever `RAYON_NUM_THREADS` is.
     pub par: Par,
 }
+
+/// Number of parts the dense kernels split their work into, fixed so that results do not
+/// depend on the machine's thread count (a split decided by the pool size would).
+pub const KERNEL_PARTS: usize = 4;
 
 impl Default for PodOptions {
     fn default() -> Self {
@@ -112,7 +118,7 @@ impl Default for PodOptions {
             method: PodMethod::default(),
             rank: Rank::default(),
             block_size: None,
-            par: Par::rayon(0),
+            par: Par::rayon(KERNEL_PARTS),
         }
     }
 }

@@ -85,7 +85,7 @@ fn options_for(args: &BasisArgs, site: &Site) -> Result<PodOptions, BadArgument>
         },
         rank,
         block_size: None,
-        par: faer::Par::rayon(0),
+        par: faer::Par::rayon(crate::basis::KERNEL_PARTS),
     })
 }
 

@@ -11,10 +11,12 @@ use clap::{Parser, Subcommand};
 mod basis;
 mod check;
 mod merge;
+mod pipeline;
 mod plan;
 mod progress;
 mod score;
 pub mod synth;
+mod sweep;
 
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
 pub const EXIT_BAD_INPUT: u8 = 2;
@@ -59,6 +61,8 @@ pub enum Command {
     Plan(plan::PlanArgs),
     /// Generate the velocity snapshots of a `[synth]` site with the built-in 2-D flow solver.
     Synth(synth::SynthArgs),
+    /// One trade-off study (count, budget, noise, interval, background, loss) as a table.
+    Sweep(sweep::SweepArgs),
 }
 
 /// Runs crowsnest with the given arguments (the first is the program name).
@@ -78,6 +82,9 @@ where
             };
         }
     };
+    // faer's operators use the global setting; a fixed split keeps results independent of
+    // the machine's thread count (the pool size then only changes the speed).
+    faer::set_global_parallelism(faer::Par::rayon(crate::basis::KERNEL_PARTS));
     match std::panic::catch_unwind(|| run(cli)) {
         Ok(Ok(())) => ExitCode::SUCCESS,
         Ok(Err(err)) => {
@@ -99,6 +106,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Score(args) => score::run(args),
         Command::Plan(args) => plan::run(args),
         Command::Synth(args) => synth::run(args),
+        Command::Sweep(args) => sweep::run(args),
     }
 }
 

@@ -7,7 +7,6 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 
-use crate::basis::{compute_for_site_with_warnings, PodOptions, Rank};
 use crate::io::layout_file::{write_layout_csv, LayoutRow};
 use crate::io::table::write_csv_table;
 use crate::io::{atomic::write_bytes_atomic, load_site, Site};
@@ -15,10 +14,11 @@ use crate::render::plan_report::{plan_document, PlanFacts};
 use crate::render::write_report;
 use crate::select::{site_constraints, Criterion, Layout};
 use crate::sweep::{
-    run_plan, CellOutcome, Goal, PipelineStage, PlanOptions, PlanStage, SitePipeline, TIDY_HEADER,
+    run_plan, CellOutcome, Goal, PlanOptions, PlanStage, SitePipeline, TIDY_HEADER,
 };
 use crate::twin::{FilterKind, TwinSettings};
 
+use super::pipeline::{build_pipeline, rank_of};
 use super::progress::StageBar;
 use super::BadArgument;
 
@@ -95,38 +95,8 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
         .with_runs(n_runs)?
         .with_background_sd(args.background_noise)?
         .with_seed(args.seed);
-    let rank = match args.modes {
-        Some(n) => Rank::Count(n),
-        None => Rank::EnergyFraction(args.energy),
-    };
-    rank.validate(usize::MAX)?;
-
-    let mut warnings = site.warnings.clone();
-    let bar = StageBar::new("POD basis", "blocks");
-    let basis = compute_for_site_with_warnings(
-        &site,
-        &PodOptions {
-            rank,
-            ..PodOptions::default()
-        },
-        &mut |d, t| bar.set(d, t),
-        &mut |w| warnings.push(w),
-    )?;
-    bar.finish();
-
-    let bar = StageBar::new("projection and sensors", "steps");
-    let pipeline =
-        SitePipeline::build(&site, basis, false, &settings.model, &mut |stage, d, t| {
-            let offset = match stage {
-                PipelineStage::Projection => 0,
-                PipelineStage::Blocks => 1,
-                PipelineStage::Truth => 2,
-                PipelineStage::Model => 3,
-            };
-            bar.set(offset * 100 + (100 * d).checked_div(t).unwrap_or(0), 400);
-        })?;
-    bar.finish();
-    warnings.extend(pipeline.warnings.iter().cloned());
+    let rank = rank_of(args.modes, args.energy)?;
+    let (pipeline, warnings) = build_pipeline(&site, rank, &settings)?;
 
     let mut ctx = pipeline.context(
         site_constraints(&site),

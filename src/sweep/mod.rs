@@ -29,5 +29,6 @@ pub use recommend::{recommend, Goal, Recommendation, DESIGN_METHODS};
 pub use run::{run_cells, CellEvaluator, SweepError};
 pub use studies::{
     budget_settings, cells_of, condition_studies, count_settings, design_studies, StudySpec,
+    BACKGROUND_MULTIPLIERS, INTERVAL_MULTIPLIERS, NOISE_MULTIPLIERS,
 };
 pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};
