@@ -913,3 +913,39 @@ fn fine_grids_are_merged_into_blocks_so_svg_stays_small() {
     let svg = render::to_svg(&gallery, "fine-gallery").unwrap();
     assert!(svg.len() < 1_000_000, "gallery SVG is {} bytes", svg.len());
 }
+
+#[test]
+fn demo_site_geometry_renders_on_the_map() {
+    // The shipped harbour-quay demo: its obstacles, zones and every candidate on one map,
+    // with one sensor of each kind that a candidate allows (beams traced by `sensors`).
+    let path = crate::common::repo_root().join("demo-sites/harbour-quay/site.toml");
+    let site = crowsnest::io::load_site_for_synth(&path).unwrap();
+    let mut sensors = Vec::new();
+    for kind_idx in 0..site.kinds.len() {
+        if let Some(candidate_idx) = site
+            .candidates
+            .iter()
+            .position(|c| c.kind_idx.contains(&kind_idx))
+        {
+            sensors.push(render::MapSensor {
+                candidate_idx,
+                kind_idx,
+                rank: Some(sensors.len() + 1),
+                existing: false,
+            });
+        }
+    }
+    let mut map = SiteMap::new(&site, format!("{}: geometry and candidates", site.name));
+    map.beams = render::MapBeam::for_sensors(&site, &sensors);
+    map.sensors = sensors;
+    let svg = check_figure(&map, "demo-harbour-quay", &[rgb(palette::ZONE)]);
+    for kind in &site.kinds {
+        if map
+            .sensors
+            .iter()
+            .any(|s| site.kinds[s.kind_idx].name == kind.name)
+        {
+            assert!(svg.contains(&format!("{} sensor", kind.name)));
+        }
+    }
+}

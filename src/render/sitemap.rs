@@ -236,12 +236,24 @@ impl Figure for SiteMap<'_> {
                 root.draw(&Circle::new((x, y), 3, PAPER.stroke_width(1)))?;
             }
         }
-        for s in &self.sensors {
-            let (x, y) = to_px(site.candidates[s.candidate_idx].position);
+        // Several sensors on one mount sit side by side, 14 px apart, centred on the mount.
+        let sensor_px: Vec<(i32, i32)> = self
+            .sensors
+            .iter()
+            .enumerate()
+            .map(|(n, s)| {
+                let same: Vec<usize> = (0..self.sensors.len())
+                    .filter(|&m| self.sensors[m].candidate_idx == s.candidate_idx)
+                    .collect();
+                let slot = same.iter().position(|&m| m == n).unwrap_or(0) as i32;
+                let (x, y) = to_px(site.candidates[s.candidate_idx].position);
+                (x + 14 * slot - 7 * (same.len() as i32 - 1), y)
+            })
+            .collect();
+        for &(x, y) in &sensor_px {
             taken.push([x - 9, y - 9, x + 9, y + 9]);
         }
-        for s in &self.sensors {
-            let at = to_px(site.candidates[s.candidate_idx].position);
+        for (s, &at) in self.sensors.iter().zip(&sensor_px) {
             let style = SiteMap::kind_style(s.kind_idx);
             if s.existing {
                 root.draw(&Circle::new(at, 12, PAPER.stroke_width(5)))?;
@@ -250,9 +262,8 @@ impl Figure for SiteMap<'_> {
             figure::draw_marker_with_halo(root, at, style.marker, 6.5, style.colour)?;
         }
         let label_style = figure::text(SMALL_PX, INK);
-        for s in &self.sensors {
+        for (s, &at) in self.sensors.iter().zip(&sensor_px) {
             let Some(rank) = s.rank else { continue };
-            let at = to_px(site.candidates[s.candidate_idx].position);
             let label = rank.to_string();
             let (tw, th) = root
                 .estimate_text_size(&label, &label_style)
