@@ -15,8 +15,8 @@ mod pipeline;
 mod plan;
 mod progress;
 mod score;
-pub mod synth;
 mod sweep;
+pub mod synth;
 
 /// Exit code for input the user can fix (bad file, bad value, bad argument).
 pub const EXIT_BAD_INPUT: u8 = 2;
