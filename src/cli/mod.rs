@@ -110,20 +110,12 @@ fn run(cli: Cli) -> anyhow::Result<()> {
     }
 }
 
-/// Demo sites generate their snapshots with the built-in flow solver; say so when they are
-/// missing instead of failing on an absent file.
-fn synth_if_missing(site: &crate::io::Site, _quick: bool) -> anyhow::Result<()> {
-    if let crate::io::FlowSource::Snapshots(files) = &site.flow {
-        if !files.path.exists() {
-            return Err(BadArgument {
-                option: "site".into(),
-                message: format!(
-                    "{} does not exist; generate it with `crowsnest synth {}` or point [snapshots] at your own file",
-                    files.path.display(),
-                    site.root.display()
-                ),
-            }
-            .into());
+/// Demo sites (`[synth]` in site.toml) get their snapshots from the built-in flow solver
+/// when they are missing or out of date, so `plan` works on a fresh clone.
+fn synth_if_needed(site_path: &std::path::Path, quick: bool) -> anyhow::Result<()> {
+    if let Ok(site) = crate::io::load_site_for_synth(site_path) {
+        if site.synth.is_some() {
+            synth::ensure_snapshots(site_path, quick, false, true)?;
         }
     }
     Ok(())

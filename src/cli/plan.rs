@@ -22,6 +22,9 @@ use super::pipeline::{build_pipeline, rank_of};
 use super::progress::StageBar;
 use super::BadArgument;
 
+/// Modes kept by `--quick` unless `--modes` says otherwise.
+const QUICK_MODES: usize = 8;
+
 /// Plan a sensor layout end to end and write a report.
 #[derive(Debug, Args)]
 pub struct PlanArgs {
@@ -80,8 +83,8 @@ fn goal_of(args: &PlanArgs) -> Result<Option<Goal>, BadArgument> {
 
 pub fn run(args: PlanArgs) -> anyhow::Result<()> {
     let goal = goal_of(&args)?;
+    super::synth_if_needed(&args.site, args.quick)?;
     let site = load_site(&args.site)?;
-    super::synth_if_missing(&site, args.quick)?;
     let max_count = args.max_count.unwrap_or(if args.quick { 6 } else { 10 });
     let n_runs = args.runs.unwrap_or(if args.quick { 8 } else { 30 });
     if max_count == 0 {
@@ -95,7 +98,11 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
         .with_runs(n_runs)?
         .with_background_sd(args.background_noise)?
         .with_seed(args.seed);
-    let rank = rank_of(args.modes, args.energy)?;
+    // A quick look keeps few modes so the short quick record still fits the model.
+    let modes = args
+        .modes
+        .or(if args.quick { Some(QUICK_MODES) } else { None });
+    let rank = rank_of(modes, args.energy)?;
     let (pipeline, warnings) = build_pipeline(&site, rank, &settings)?;
 
     let mut ctx = pipeline.context(
@@ -116,6 +123,7 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
         max_count,
         goal,
         max_loss: 3,
+        max_interval_multiplier: pipeline.max_interval_multiplier(&site),
     };
     let outcome = run_plan(
         &mut ctx,

@@ -7,6 +7,7 @@ use crate::basis::{project, Basis, Projection};
 use crate::io::{open_snapshots, Site};
 use crate::select::{prior_from_energies, problem_for_site, Constraints, Criterion, Problem};
 use crate::sensors::{build_blocks, Block};
+use crate::twin::schedule::steps_between_readings;
 use crate::twin::{case_from_site, ModelSettings, ReducedModel, TimeSplit, TwinCase, TwinSettings};
 
 use super::context::StudyContext;
@@ -54,11 +55,44 @@ impl SitePipeline {
             progress(PipelineStage::Projection, d, t)
         })
         .map_err(|e| stage("projecting the snapshots on the basis")(e.into()))?;
+        let dt_s = match &site.flow {
+            crate::io::FlowSource::Snapshots(files) => files.dt,
+            crate::io::FlowSource::Basis(_) => f64::NAN,
+        };
+        let split = TimeSplit::new(
+            projection.coeffs.nrows(),
+            model_settings.train_fraction,
+            basis.n_modes(),
+        )
+        .map_err(|e| stage("splitting the record")(e.into()))?;
         progress(PipelineStage::Blocks, 0, 1);
         let block_set = build_blocks(site, &basis)
             .map_err(|e| stage("building the sensor blocks")(e.into()))?;
         let mut warnings = block_set.warnings;
-        let blocks = block_set.blocks;
+        // A sensor that cannot report within the test span cannot be scored: leave it out.
+        let last_test_step = split.n_test.saturating_sub(1);
+        let mut slow_kinds = Vec::new();
+        let blocks: Vec<Block> = block_set
+            .blocks
+            .into_iter()
+            .filter(|b| {
+                let kind = &site.kinds[b.kind_idx];
+                let fits = steps_between_readings(kind.interval, dt_s) <= last_test_step;
+                if !fits && !slow_kinds.contains(&b.kind_idx) {
+                    slow_kinds.push(b.kind_idx);
+                }
+                fits
+            })
+            .collect();
+        for kind_idx in slow_kinds {
+            let kind = &site.kinds[kind_idx];
+            warnings.push(format!(
+                "sensor kind `{}` reads every {} s, longer than the {} s test span of the record; it is left out of these studies (use a longer record)",
+                kind.name,
+                kind.interval,
+                last_test_step as f64 * dt_s
+            ));
+        }
         progress(PipelineStage::Blocks, 1, 1);
         let prior = prior_from_energies(&basis.energies, basis.n_modes(), flat_prior);
         let problem = problem_for_site(site, &blocks, &prior)
@@ -69,12 +103,6 @@ impl SitePipeline {
             .map_err(|e| stage("reading the truth through every sensor")(e.into()))?;
         progress(PipelineStage::Truth, 1, 1);
         progress(PipelineStage::Model, 0, 1);
-        let split = TimeSplit::new(
-            case.n_snapshots(),
-            model_settings.train_fraction,
-            case.n_modes(),
-        )
-        .map_err(|e| stage("splitting the record")(e.into()))?;
         let model = ReducedModel::fit(
             case.coeffs.as_ref().subrows(0, split.n_train),
             model_settings,
@@ -91,6 +119,16 @@ impl SitePipeline {
             model,
             warnings,
         })
+    }
+
+    /// Largest factor every kept sensor's sampling interval can be stretched by and still
+    /// report within the test span.
+    pub fn max_interval_multiplier(&self, site: &Site) -> f64 {
+        let span = self.split.n_test.saturating_sub(1) as f64 * self.case.dt_s;
+        self.blocks
+            .iter()
+            .map(|b| span / site.kinds[b.kind_idx].interval)
+            .fold(f64::INFINITY, f64::min)
     }
 
     /// A study context over this pipeline.

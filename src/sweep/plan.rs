@@ -29,6 +29,9 @@ pub struct PlanOptions {
     pub goal: Option<Goal>,
     /// Largest number of lost sensors in the loss study.
     pub max_loss: usize,
+    /// Largest sampling-interval multiplier the record allows (see
+    /// `SitePipeline::max_interval_multiplier`).
+    pub max_interval_multiplier: f64,
 }
 
 /// Effect of losing one sensor of the recommended layout.
@@ -114,8 +117,11 @@ pub fn run_plan(
 
     ctx.base_count = n_new.max(1);
     let max_loss = options.max_loss.min((n_new + n_kept).saturating_sub(1));
-    let mut condition_cells =
-        cells_of(&condition_studies(ctx.settings.run.background_sd, max_loss));
+    let mut condition_cells = cells_of(&condition_studies(
+        ctx.settings.run.background_sd,
+        max_loss,
+        options.max_interval_multiplier,
+    ));
     // Condition cells follow the design cells in the journal's numbering.
     let offset = design_cells.len();
     let mut all_cells = design_cells.clone();

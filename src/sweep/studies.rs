@@ -75,7 +75,13 @@ pub fn design_studies(max_count: usize, budgets: Vec<f64>) -> Vec<StudySpec> {
 }
 
 /// The second phase: the recommended size under changed conditions and sensor losses.
-pub fn condition_studies(base_background: f64, max_loss: usize) -> Vec<StudySpec> {
+/// Interval multipliers above `max_multiplier` (the slowest sensor would stop reporting
+/// within the test span) are left out.
+pub fn condition_studies(
+    base_background: f64,
+    max_loss: usize,
+    max_multiplier: f64,
+) -> Vec<StudySpec> {
     let mut specs = vec![
         StudySpec::new(
             StudyKind::Noise,
@@ -85,7 +91,11 @@ pub fn condition_studies(base_background: f64, max_loss: usize) -> Vec<StudySpec
         StudySpec::new(
             StudyKind::Interval,
             &CONDITION_METHODS,
-            INTERVAL_MULTIPLIERS.to_vec(),
+            INTERVAL_MULTIPLIERS
+                .iter()
+                .copied()
+                .filter(|&m| m <= max_multiplier)
+                .collect(),
         ),
         StudySpec::new(
             StudyKind::Background,
