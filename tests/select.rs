@@ -723,3 +723,40 @@ fn lazy_greedy_equals_eager_greedy_on_many_single_rows() {
     }
     assert_eq!(lazy_order, eager);
 }
+
+/// End to end on the tiny fixture site: `rank` prints the table and the gap, and writes a
+/// layout.csv that reads back with the site's existing sensor first.
+#[test]
+fn rank_command_on_tiny_site() {
+    let site = crate::common::repo_root().join("tests/fixtures/tiny-site");
+    let dir = tempfile::tempdir().unwrap();
+    for method in ["greedy", "qr", "exchange", "random", "grid"] {
+        let out = dir.path().join(format!("{method}.csv"));
+        let output = crate::common::run_in(
+            dir.path(),
+            &[
+                "rank",
+                site.to_str().unwrap(),
+                "--count",
+                "2",
+                "--method",
+                method,
+                "--out",
+                out.to_str().unwrap(),
+            ],
+        );
+        let stdout = String::from_utf8_lossy(&output.stdout);
+        assert!(
+            output.status.success(),
+            "{method}: {}",
+            String::from_utf8_lossy(&output.stderr)
+        );
+        assert!(stdout.contains("gap"), "{stdout}");
+        let rows = crowsnest::io::layout_file::read_layout_csv(&out).unwrap();
+        assert_eq!(rows.len(), 3, "{method}");
+        assert_eq!(rows[0].candidate, "mast-a");
+        assert!(rows
+            .windows(2)
+            .all(|w| w[1].cumulative_cost >= w[0].cumulative_cost));
+    }
+}

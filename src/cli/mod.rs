@@ -14,6 +14,7 @@ mod merge;
 mod pipeline;
 mod plan;
 mod progress;
+mod rank;
 mod score;
 mod sweep;
 pub mod synth;
@@ -63,6 +64,8 @@ pub enum Command {
     Synth(synth::SynthArgs),
     /// One trade-off study (count, budget, noise, interval, background, loss) as a table.
     Sweep(sweep::SweepArgs),
+    /// Rank candidate mounts for a site (D/A/E criteria, greedy, QR, exchange, baselines).
+    Rank(rank::RankArgs),
 }
 
 /// Runs crowsnest with the given arguments (the first is the program name).
@@ -107,6 +110,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Plan(args) => plan::run(args),
         Command::Synth(args) => synth::run(args),
         Command::Sweep(args) => sweep::run(args),
+        Command::Rank(args) => rank::run(args),
     }
 }
 
