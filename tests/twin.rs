@@ -525,3 +525,120 @@ fn explosive_quadratic_fit_is_refused() {
         ),
     }
 }
+
+fn twin_site() -> std::path::PathBuf {
+    repo_root().join("tests/fixtures/twin-site")
+}
+
+/// `crowsnest score` on the twin-site fixture prints the table and writes both CSV files with
+/// the documented columns; bad inputs exit with code 2 and a message naming the value.
+#[test]
+fn score_command_writes_curves_and_runs() {
+    let out = tempfile::tempdir().unwrap();
+    let site = twin_site();
+    let layout = site.join("layout.csv");
+    let out_dir = out.path().join("scores");
+    let args = [
+        "score",
+        site.to_str().unwrap(),
+        "--layout",
+        layout.to_str().unwrap(),
+        "--runs",
+        "6",
+        "--modes",
+        "3",
+        "--out",
+        out_dir.to_str().unwrap(),
+    ];
+    let o = crate::common::run_in(out.path(), &args);
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        o.status.success(),
+        "{stdout}\n{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(
+        stdout.contains("ratio to free run") && stdout.contains("Caution"),
+        "{stdout}"
+    );
+    let curves = std::fs::read_to_string(out_dir.join("curves.csv")).unwrap();
+    assert!(
+        curves.starts_with("step,time_s,mean_rmse,std_rmse,free_mean_rmse"),
+        "{curves}"
+    );
+    assert_eq!(curves.lines().count(), 1 + 120, "header + 120 test steps");
+    let runs = std::fs::read_to_string(out_dir.join("runs.csv")).unwrap();
+    assert_eq!(runs.lines().count(), 1 + 6);
+}
+
+#[test]
+fn score_command_bad_inputs_exit_2() {
+    let dir = tempfile::tempdir().unwrap();
+    let site = twin_site();
+    let site_s = site.to_str().unwrap().to_string();
+    let good = site.join("layout.csv").to_str().unwrap().to_string();
+    let unknown = dir.path().join("unknown.csv");
+    std::fs::write(&unknown, "candidate,kind\nmast-a,cup\nmast-zz,cup\n").unwrap();
+    let bad_kind = dir.path().join("kind.csv");
+    std::fs::write(&bad_kind, "candidate,kind\nmast-a,sonic\n").unwrap();
+    let cases: Vec<(Vec<String>, &str)> = vec![
+        (
+            vec!["--layout".into(), unknown.to_str().unwrap().into()],
+            "unknown candidate `mast-zz`",
+        ),
+        (
+            vec!["--layout".into(), bad_kind.to_str().unwrap().into()],
+            "unknown sensor kind `sonic`",
+        ),
+        (
+            vec!["--layout".into(), good.clone(), "--runs".into(), "0".into()],
+            "at least 1",
+        ),
+        (
+            vec![
+                "--layout".into(),
+                good.clone(),
+                "--filter".into(),
+                "enkf".into(),
+                "--ensemble".into(),
+                "1".into(),
+            ],
+            "at least 2 members",
+        ),
+        (
+            vec![
+                "--layout".into(),
+                good.clone(),
+                "--every".into(),
+                "500".into(),
+            ],
+            "longer than the test span",
+        ),
+        (
+            vec![
+                "--layout".into(),
+                good.clone(),
+                "--train-fraction".into(),
+                "0.999".into(),
+            ],
+            "too few snapshots",
+        ),
+    ];
+    for (extra, expect) in cases {
+        let mut args = vec![
+            "score".to_string(),
+            site_s.clone(),
+            "--modes".into(),
+            "3".into(),
+        ];
+        args.extend(extra);
+        let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+        let o = crate::common::run_in(dir.path(), &argv);
+        let stderr = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {stderr}");
+        assert!(
+            stderr.contains(expect),
+            "{args:?}: expected `{expect}` in {stderr}"
+        );
+    }
+}
