@@ -11,7 +11,8 @@
 //! ranking carries the convex-relaxation upper bound of Joshi & Boyd (2009) on log det J and
 //! the layout's gap to it.
 //!
-//! The module reads no files, prints nothing and starts no threads; the caller turns sensor
+//! The module reads no files and prints nothing; its refresh kernels use rayon's pool with fixed
+//! task cuts (bit-identical for any thread count). The caller turns sensor
 //! blocks and site geometry into a [`Problem`] and gets a [`Ranking`] back.
 
 mod baseline;
