@@ -15,6 +15,7 @@ mod pipeline;
 mod plan;
 mod progress;
 mod rank;
+mod rescore;
 mod score;
 mod sweep;
 pub mod synth;
@@ -62,6 +63,8 @@ pub enum Command {
     Plan(plan::PlanArgs),
     /// Generate the velocity snapshots of a `[synth]` site with the built-in 2-D flow solver.
     Synth(synth::SynthArgs),
+    /// Re-score an old layout on a changed site and propose additions that restore its error.
+    Rescore(rescore::RescoreArgs),
     /// One trade-off study (count, budget, noise, interval, background, loss) as a table.
     Sweep(sweep::SweepArgs),
     /// Rank candidate mounts for a site (D/A/E criteria, greedy, QR, exchange, baselines).
@@ -110,6 +113,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Plan(args) => plan::run(args),
         Command::Synth(args) => synth::run(args),
         Command::Sweep(args) => sweep::run(args),
+        Command::Rescore(args) => rescore::run(args),
         Command::Rank(args) => rank::run(args),
     }
 }
