@@ -9,7 +9,7 @@ use anyhow::Context;
 use clap::{Args, ValueEnum};
 
 use crate::basis::{compute_for_site_with_warnings, PodOptions, Rank};
-use crate::io::layout_file::{read_layout_csv, write_layout_csv, LayoutRow};
+use crate::io::layout_file::{read_layout_csv, write_layout_csv};
 use crate::io::{load_site, Site};
 use crate::select::{
     prior_from_energies, problem_for_site, rank, site_constraints, Criterion, Limit, Method,
@@ -196,7 +196,7 @@ pub fn run(args: RankArgs) -> anyhow::Result<()> {
     for w in warnings.iter().filter(|w| seen.insert(w.as_str())) {
         eprintln!("{w}");
     }
-    let rows = layout_rows(&site, &ranking);
+    let rows = super::plan::layout_rows(&site, &ranking.layout);
     write_layout_csv(&args.out, &rows)?;
     println!("wrote {}", args.out.display());
     println!(
@@ -205,28 +205,6 @@ pub fn run(args: RankArgs) -> anyhow::Result<()> {
          laser-safety limits; have it checked by a licensed professional."
     );
     Ok(())
-}
-
-fn layout_rows(site: &Site, ranking: &Ranking) -> Vec<LayoutRow> {
-    ranking
-        .layout
-        .entries
-        .iter()
-        .map(|e| {
-            let c = &site.candidates[e.candidate_idx];
-            LayoutRow {
-                rank: e.rank,
-                candidate: c.id.clone(),
-                kind: site.kinds[e.kind_idx].name.clone(),
-                x: c.position[0],
-                y: c.position[1],
-                marginal_gain: e.marginal_gain,
-                cumulative_criterion: e.cumulative_criterion,
-                cumulative_cost: e.cumulative_cost,
-                kept: true,
-            }
-        })
-        .collect()
 }
 
 fn print_ranking(site: &Site, ranking: &Ranking, n_modes: usize, args: &RankArgs) {
