@@ -537,8 +537,18 @@ pub fn plan_document(
             ),
         ),
     ];
-    for w in &facts.warnings {
+    const SHOWN_WARNINGS: usize = 5;
+    for w in facts.warnings.iter().take(SHOWN_WARNINGS) {
         site_facts.push(("warning".into(), w.clone()));
+    }
+    if facts.warnings.len() > SHOWN_WARNINGS {
+        site_facts.push((
+            "warning".into(),
+            format!(
+                "… and {} more (blocked beams, excluded candidates); `crowsnest check` and the plan's terminal output list them all",
+                facts.warnings.len() - SHOWN_WARNINGS
+            ),
+        ));
     }
 
     let report = Report {
