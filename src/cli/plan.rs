@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use clap::Args;
 
-use crate::io::layout_file::{write_layout_csv, LayoutRow};
+use crate::io::layout_file::{layout_csv_text, write_layout_csv, LayoutRow};
 use crate::io::table::write_csv_table;
 use crate::io::{atomic::write_bytes_atomic, load_site, Site};
 use crate::render::plan_report::{plan_document, PlanFacts};
@@ -236,26 +236,6 @@ pub fn layout_rows(site: &Site, layout: &Layout) -> Vec<LayoutRow> {
             }
         })
         .collect()
-}
-
-fn layout_csv_text(rows: &[LayoutRow]) -> String {
-    let mut text = crate::io::layout_file::LAYOUT_COLUMNS.join(",");
-    text.push('\n');
-    for r in rows {
-        text.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{}\n",
-            r.rank,
-            r.candidate,
-            r.kind,
-            r.x,
-            r.y,
-            r.marginal_gain,
-            r.cumulative_criterion,
-            r.cumulative_cost,
-            r.kept
-        ));
-    }
-    text
 }
 
 fn assumptions(

@@ -120,6 +120,18 @@ pub fn read_layout_csv(path: &Path) -> Result<Vec<LayoutRow>, IoError> {
 
 /// Writes a layout atomically; NaN numbers become empty cells, so reading gives them back.
 pub fn write_layout_csv(path: &Path, rows: &[LayoutRow]) -> Result<(), IoError> {
+    write_atomic(path, |w| write_layout_records(w, rows))
+}
+
+/// The text [`write_layout_csv`] writes, for embedding a layout in a report.
+pub fn layout_csv_text(rows: &[LayoutRow]) -> String {
+    let mut bytes = Vec::new();
+    // Writing to memory cannot fail.
+    let _ = write_layout_records(&mut bytes, rows);
+    String::from_utf8_lossy(&bytes).into_owned()
+}
+
+fn write_layout_records(w: &mut dyn std::io::Write, rows: &[LayoutRow]) -> std::io::Result<()> {
     let cell = |v: f64| {
         if v.is_nan() {
             String::new()
@@ -127,28 +139,26 @@ pub fn write_layout_csv(path: &Path, rows: &[LayoutRow]) -> Result<(), IoError> 
             format!("{v}")
         }
     };
-    write_atomic(path, |w| {
-        let mut writer = csv::Writer::from_writer(w);
+    let mut writer = csv::Writer::from_writer(w);
+    writer
+        .write_record(LAYOUT_COLUMNS)
+        .map_err(std::io::Error::other)?;
+    for r in rows {
         writer
-            .write_record(LAYOUT_COLUMNS)
+            .write_record([
+                r.rank.to_string(),
+                r.candidate.clone(),
+                r.kind.clone(),
+                cell(r.x),
+                cell(r.y),
+                cell(r.marginal_gain),
+                cell(r.cumulative_criterion),
+                cell(r.cumulative_cost),
+                r.kept.to_string(),
+            ])
             .map_err(std::io::Error::other)?;
-        for r in rows {
-            writer
-                .write_record([
-                    r.rank.to_string(),
-                    r.candidate.clone(),
-                    r.kind.clone(),
-                    cell(r.x),
-                    cell(r.y),
-                    cell(r.marginal_gain),
-                    cell(r.cumulative_criterion),
-                    cell(r.cumulative_cost),
-                    r.kept.to_string(),
-                ])
-                .map_err(std::io::Error::other)?;
-        }
-        writer.flush()
-    })
+    }
+    writer.flush()
 }
 
 #[cfg(test)]
