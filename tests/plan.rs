@@ -8,7 +8,7 @@ use std::process::Command;
 
 use crowsnest::sweep::TIDY_HEADER;
 
-use super::common::{bin, repo_root};
+use super::common::{bin, find_chromium, repo_root, run_chromium};
 
 fn fixture() -> PathBuf {
     repo_root().join("tests/fixtures/twin-site")
@@ -110,39 +110,17 @@ fn plan_quick_writes_every_promised_file_and_the_report_renders() {
 
 /// Renders `html` in headless Chromium and checks the page has content and no console errors.
 fn screenshot_is_not_blank(html: &Path, scratch: &Path) {
-    let chromium = ["chromium", "chromium-browser"]
-        .iter()
-        .find(|name| {
-            Command::new(name)
-                .arg("--version")
-                .output()
-                .is_ok_and(|o| o.status.success())
-        })
-        .unwrap_or_else(|| panic!("chromium is not installed: the report test needs it (apt-get install -y chromium; .ci/run installs it)"));
+    let chromium = find_chromium().unwrap_or_else(|| panic!("chromium is not installed: the report test needs it (apt-get install -y chromium; .ci/run installs it)"));
     let png = scratch.join("shot.png");
-    let out = Command::new(chromium)
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            "--hide-scrollbars",
-            "--enable-logging=stderr",
-            "--v=0",
-            "--window-size=1200,6000",
-        ])
-        .arg(format!(
-            "--user-data-dir={}",
-            scratch.join("profile").display()
-        ))
-        .arg(format!("--screenshot={}", png.display()))
-        .arg(format!("file://{}", html.display()))
-        .output()
-        .expect("chromium starts");
+    let out = run_chromium(
+        &chromium,
+        &scratch.join("profile"),
+        &[
+            "--window-size=1200,6000".to_string(),
+            format!("--screenshot={}", png.display()),
+        ],
+        html,
+    );
     let log = String::from_utf8_lossy(&out.stderr);
     assert!(
         !log.contains("Uncaught") && !log.contains("CONSOLE"),

@@ -4,8 +4,7 @@
 
 #![allow(clippy::unwrap_used)]
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+use std::path::PathBuf;
 
 use crowsnest::basis::Basis;
 use crowsnest::io::{
@@ -19,7 +18,7 @@ use crowsnest::render::{
 };
 use crowsnest::select::{Layout, LayoutEntry};
 
-use crate::common::assert_close;
+use crate::common::{assert_close, find_chromium, run_chromium};
 
 fn rect(x0: f64, y0: f64, x1: f64, y1: f64) -> Polygon {
     Polygon {
@@ -736,44 +735,6 @@ fn full_report(site: &Site) -> Report {
         ],
         extra_cautions: Vec::new(),
     }
-}
-
-fn find_chromium() -> Option<PathBuf> {
-    ["chromium", "chromium-browser"].iter().find_map(|name| {
-        Command::new(name)
-            .arg("--version")
-            .output()
-            .ok()
-            .filter(|o| o.status.success())
-            .map(|_| PathBuf::from(name))
-    })
-}
-
-fn run_chromium(
-    chromium: &Path,
-    profile: &Path,
-    extra: &[String],
-    html: &Path,
-) -> std::process::Output {
-    Command::new(chromium)
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            "--hide-scrollbars",
-            "--enable-logging=stderr",
-            "--v=0",
-        ])
-        .arg(format!("--user-data-dir={}", profile.display()))
-        .args(extra)
-        .arg(format!("file://{}", html.display()))
-        .output()
-        .expect("chromium starts")
 }
 
 #[test]

@@ -34,3 +34,43 @@ pub fn assert_close(a: f64, b: f64, abs: f64, rel: f64) {
         (a - b).abs()
     );
 }
+
+/// The Chromium binary on PATH, if any.
+pub fn find_chromium() -> Option<PathBuf> {
+    ["chromium", "chromium-browser"].iter().find_map(|name| {
+        Command::new(name)
+            .arg("--version")
+            .output()
+            .ok()
+            .filter(|o| o.status.success())
+            .map(|_| PathBuf::from(name))
+    })
+}
+
+/// Runs headless Chromium on `html` with a fresh profile; `extra` adds flags (screenshot, window size).
+pub fn run_chromium(
+    chromium: &Path,
+    profile: &Path,
+    extra: &[String],
+    html: &Path,
+) -> std::process::Output {
+    Command::new(chromium)
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            "--hide-scrollbars",
+            "--enable-logging=stderr",
+            "--v=0",
+        ])
+        .arg(format!("--user-data-dir={}", profile.display()))
+        .args(extra)
+        .arg(format!("file://{}", html.display()))
+        .output()
+        .expect("chromium starts")
+}
