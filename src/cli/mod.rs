@@ -143,6 +143,9 @@ fn exit_code_for(err: &anyhow::Error) -> u8 {
                 .is_some_and(|e| e.is_bad_input())
             || cause.downcast_ref::<crate::select::SelectError>().is_some()
             || cause
+                .downcast_ref::<crate::sweep::SweepError>()
+                .is_some_and(|e| e.is_bad_input())
+            || cause
                 .downcast_ref::<crate::basis::BasisError>()
                 .is_some_and(|e| e.is_bad_input())
     });

@@ -114,7 +114,7 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
     );
     let journal = args.out.join(format!(
         ".plan-journal-{:016x}.csv",
-        fingerprint(&args, &site)
+        fingerprint(&args, &site)?
     ));
     let design_bar = StageBar::new("layouts by count/budget", "cells");
     let condition_bar = StageBar::new("robustness studies", "cells");
@@ -197,11 +197,10 @@ fn site_currency(_site: &Site) -> String {
 }
 
 /// Hash of everything that changes a plan's cells, so a journal is reused only for the same
-/// question: the site file's text and the options.
-fn fingerprint(args: &PlanArgs, site: &Site) -> u64 {
-    let site_text = std::fs::read_to_string(site.root.join("site.toml")).unwrap_or_default();
-    let key = format!(
-        "{site_text}|{:?}|{:?}|{}|{:?}|{:?}|{}|{}|{:?}|{}|{}",
+/// question: the content of every site input (io's digest) and the options.
+fn fingerprint(args: &PlanArgs, site: &Site) -> Result<u64, crate::io::IoError> {
+    let options = format!(
+        "plan|{:?}|{:?}|{}|{:?}|{:?}|{}|{}|{:?}|{}",
         args.target_rmse,
         args.budget,
         args.quick,
@@ -211,9 +210,8 @@ fn fingerprint(args: &PlanArgs, site: &Site) -> u64 {
         args.energy,
         args.modes,
         args.seed,
-        env!("CARGO_PKG_VERSION")
     );
-    crate::twin::montecarlo::fnv1a(key.as_bytes())
+    crate::io::digest::site_inputs_digest(site, &options)
 }
 
 /// The layout as `layout.csv` rows.

@@ -130,9 +130,8 @@ pub fn run(args: SweepArgs) -> anyhow::Result<()> {
     let methods: Vec<&str> = args.methods.iter().map(String::as_str).collect();
     let cells = cells_of(&[StudySpec::new(args.over, &methods, values)]);
     let shard = args.shard.unwrap_or(Shard::WHOLE);
-    let key = format!(
-        "{}|{:?}|{:?}|{:?}|{}|{}|{}|{}|{}|{:?}|{}",
-        std::fs::read_to_string(site.root.join("site.toml")).unwrap_or_default(),
+    let options = format!(
+        "sweep|{:?}|{:?}|{:?}|{}|{}|{}|{}|{}|{:?}|{}",
         args.over,
         args.methods,
         args.settings,
@@ -146,7 +145,7 @@ pub fn run(args: SweepArgs) -> anyhow::Result<()> {
     );
     let journal = args.out.join(format!(
         ".sweep-journal-{:016x}.csv",
-        crate::twin::montecarlo::fnv1a(key.as_bytes())
+        crate::io::digest::site_inputs_digest(&site, &options)?
     ));
     let bar = StageBar::new(&format!("{} study", args.over), "cells");
     let outcomes = run_cells(&cells, &ctx, shard, Some(&journal), &mut |d, t| {

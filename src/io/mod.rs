@@ -14,6 +14,7 @@
 pub mod atomic;
 pub mod basis_files;
 pub mod csv_in;
+pub mod digest;
 pub mod error;
 pub mod geometry;
 pub mod keys;

@@ -36,6 +36,11 @@ pub enum SweepError {
 }
 
 impl SweepError {
+    /// A problem the user can fix (a file, or a damaged journal to delete), not a bug.
+    pub fn is_bad_input(&self) -> bool {
+        matches!(self, SweepError::Io(_) | SweepError::Journal { .. })
+    }
+
     pub fn cell(
         key: impl Into<String>,
         source: impl Into<Box<dyn std::error::Error + Send + Sync>>,
