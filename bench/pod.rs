@@ -80,6 +80,7 @@ fn memory(path: &Path) {
         method: PodMethod::Snapshots,
         rank: Rank::Count(n_snapshots - 1),
         block_size: None,
+        memory_limit: None,
         par,
     };
     let (pod_seconds, pod_cpu) = best_of(2, || {
@@ -148,6 +149,7 @@ fn chunked(path: &Path, n_modes: usize) {
         method: PodMethod::Snapshots,
         rank: Rank::Count(n_modes),
         block_size: None,
+        memory_limit: None,
         par: Par::rayon(0),
     };
     let (start, cpu) = (Instant::now(), cpu_seconds());

@@ -31,6 +31,7 @@ fn run_pod(
         method,
         rank,
         block_size: Some(7), // several blocks, ragged last one
+        memory_limit: None,
         par: Par::Seq,
     };
     let mut source = data.clone();
@@ -335,6 +336,7 @@ fn results_are_bit_identical_across_thread_counts() {
                 method,
                 rank: Rank::Count(20),
                 block_size: Some(1024),
+                memory_limit: None,
                 par: Par::rayon(n_threads),
             };
             let mut source = data.clone();

@@ -56,6 +56,16 @@ pub enum BasisError {
     /// The eigen- or singular value decomposition did not converge (a numerical failure).
     #[error("{method} did not converge on the {size} × {size} problem")]
     NoConvergence { method: &'static str, size: usize },
+    /// `--memory-limit` is below what the computation must hold at once.
+    #[error(
+        "--memory-limit {limit_mib:.1} MiB is too small: at least {need_mib:.1} MiB is needed; \
+         {detail}"
+    )]
+    MemoryLimit {
+        limit_mib: f64,
+        need_mib: f64,
+        detail: String,
+    },
     /// Reading snapshots or basis files failed.
     #[error(transparent)]
     Io(#[from] IoError),

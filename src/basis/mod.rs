@@ -18,6 +18,7 @@
 pub mod blocks;
 pub mod error;
 pub mod for_site;
+pub mod memory;
 pub mod project;
 pub mod rank;
 pub mod snapshots_method;
@@ -102,6 +103,10 @@ pub struct PodOptions {
     pub rank: Rank,
     /// Degrees of freedom per streamed block; `None` picks about 16 MiB of snapshot data.
     pub block_size: Option<usize>,
+    /// Largest memory, in bytes, the decomposition may hold at once ([`memory`]); sets the
+    /// block size (overriding `block_size`) and refuses a limit that cannot be met. `None`:
+    /// no limit.
+    pub memory_limit: Option<u64>,
     /// Parallelism of the dense kernels. The work split (not the pool size) decides the
     /// rounding, so the default fixes it at [`KERNEL_PARTS`]: results are then bit-identical
     /// whatever `RAYON_NUM_THREADS` is.
@@ -118,6 +123,7 @@ impl Default for PodOptions {
             method: PodMethod::default(),
             rank: Rank::default(),
             block_size: None,
+            memory_limit: None,
             par: Par::rayon(KERNEL_PARTS),
         }
     }
@@ -148,6 +154,9 @@ pub fn pod(
         return Err(BasisError::TooFewSnapshots { n_snapshots });
     }
     options.rank.validate(n_snapshots)?;
+    if let (Some(limit), PodMethod::Svd) = (options.memory_limit, options.method) {
+        memory::check_svd(limit, n_snapshots, expected)?;
+    }
     let dof_weights = weights::dof_weights(point_weights, n_channels);
     let Decomposition {
         mean,
@@ -159,6 +168,7 @@ pub fn pod(
             &dof_weights,
             options.rank,
             options.block_size,
+            options.memory_limit,
             options.par,
             progress,
         )?,

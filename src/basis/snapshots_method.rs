@@ -16,6 +16,7 @@
 //! * pass 2: `Φ = (X − x̄ 1ᵀ) V_r Σ_r⁻¹`, again block by block; `ΦᵀWΦ = I` by construction.
 //!
 //! Memory: `O(T² + T · block_size + n_dof · r)`; the snapshot matrix is never held whole.
+//! Under a memory limit the block size comes from [`super::memory`].
 //! Accuracy: a mode's orthonormality error grows like `ε λ_1 / λ_i` (the Gram squares the
 //! condition number); modes carrying less than ~1e-8 of the leading energy are better taken
 //! from the thin SVD route. Deterministic for any thread count: blocks are reduced in order
@@ -26,6 +27,7 @@ use faer::linalg::matmul::triangular::{self, BlockStructure};
 use faer::{Accum, Mat, Par};
 
 use super::blocks::{block_size_for, dof_blocks, SnapshotBlock};
+use super::memory::block_size_within;
 use super::weights::{fix_signs, zero_energy_threshold};
 use super::{BasisError, Decomposition, Rank};
 use crate::io::SnapshotSource;
@@ -121,12 +123,23 @@ pub fn pod_by_snapshots(
     dof_weights: &[f64],
     rank: Rank,
     block_size: Option<usize>,
+    memory_limit: Option<u64>,
     par: Par,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<Decomposition, BasisError> {
     let n_snapshots = source.n_snapshots();
     let n_dof = source.n_dof();
-    let block_size = block_size_for(n_snapshots, n_dof, block_size);
+    // Under a memory limit the first pass is budgeted for the fewest modes it may keep.
+    let block_size = match memory_limit {
+        Some(limit) => {
+            let min_modes = match rank {
+                Rank::Count(count) => count,
+                Rank::EnergyFraction(_) => 1,
+            };
+            block_size_within(limit, n_snapshots, n_dof, min_modes)?
+        }
+        None => block_size_for(n_snapshots, n_dof, block_size),
+    };
     let n_blocks = dof_blocks(n_dof, block_size).count();
     // Steps: one per block in each pass, one for the eigendecomposition.
     let n_steps = 2 * n_blocks + 1;
@@ -143,6 +156,12 @@ pub fn pod_by_snapshots(
         return Err(BasisError::NoFluctuation);
     }
     let n_modes = rank.select(&energies)?;
+    // The kept modes are known now: budget the second pass for them.
+    let block_size = match memory_limit {
+        Some(limit) => block_size_within(limit, n_snapshots, n_dof, n_modes)?.min(block_size),
+        None => block_size,
+    };
+    let n_blocks_lift = dof_blocks(n_dof, block_size).count();
     // V_r Σ_r⁻¹: the lift weights, T × r.
     let lift = Mat::from_fn(n_snapshots, n_modes, |time_idx, mode_idx| {
         vectors[(time_idx, mode_idx)] / sigma_sq[mode_idx].sqrt()
@@ -162,7 +181,10 @@ pub fn pod_by_snapshots(
             1.0,
             par,
         );
-        progress(n_blocks + 2 + block_idx, n_steps);
+        progress(
+            (n_blocks + 2 + block_idx * n_blocks / n_blocks_lift).min(n_steps),
+            n_steps,
+        );
     }
     // Solid cells carry no weight; their values would be whatever the file holds there.
     for (dof_idx, &w) in dof_weights.iter().enumerate() {

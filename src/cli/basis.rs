@@ -48,6 +48,13 @@ pub struct BasisArgs {
     /// modes of very small energy.
     #[arg(long, value_enum, default_value_t = MethodArg::Snapshots)]
     pub method: MethodArg,
+    /// Largest memory, in MiB, the decomposition may hold at once (Gram matrix, kept modes,
+    /// per-point vectors and one block of snapshots; the program itself adds about 7 MiB, see
+    /// docs/performance.md). Sets the block size of the streamed `.npy` snapshots; a limit too
+    /// small for the snapshots and modes asked is refused before any work [default: no limit,
+    /// blocks of about 16 MiB].
+    #[arg(long, value_name = "MIB")]
+    pub memory_limit: Option<f64>,
     /// Directory for modes.npy, mean.npy and energies.csv [default: a `basis` directory beside
     /// site.toml].
     #[arg(long, value_name = "DIR")]
@@ -78,6 +85,16 @@ fn options_for(args: &BasisArgs, site: &Site) -> Result<PodOptions, BadArgument>
         option: option.clone(),
         message: err.to_string(),
     })?;
+    let memory_limit = match args.memory_limit {
+        None => None,
+        Some(mib) if mib.is_finite() && mib > 0.0 => Some((mib * 1048576.0) as u64),
+        Some(mib) => {
+            return Err(BadArgument {
+                option: "--memory-limit".into(),
+                message: format!("found {mib}, expected a size in MiB > 0"),
+            })
+        }
+    };
     Ok(PodOptions {
         method: match args.method {
             MethodArg::Snapshots => PodMethod::Snapshots,
@@ -85,6 +102,7 @@ fn options_for(args: &BasisArgs, site: &Site) -> Result<PodOptions, BadArgument>
         },
         rank,
         block_size: None,
+        memory_limit,
         par: faer::Par::rayon(crate::basis::KERNEL_PARTS),
     })
 }

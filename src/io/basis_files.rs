@@ -16,7 +16,10 @@ use std::path::{Path, PathBuf};
 use faer::linalg::matmul::matmul;
 use faer::{Accum, Mat, MatRef, Par};
 
-use super::npy::{check_shape, read_npy_f64, read_npy_header, write_npy_f64};
+use super::atomic::write_atomic;
+use super::npy::{
+    check_shape, header_bytes, read_npy_f64, read_npy_header, write_npy_f64, NpyDtype,
+};
 use super::table::{read_csv_table, write_csv_table};
 use super::{BasisFiles, Domain, IoError};
 
@@ -100,12 +103,7 @@ pub fn write_basis_files(
     let mut shape = vec![modes.ncols()];
     shape.extend(&axes);
     shape.push(n_channels);
-    let mut mode_values = Vec::with_capacity(n_dof * modes.ncols());
-    for column in modes.col_iter() {
-        mode_values.extend(column.iter());
-    }
-    write_npy_f64(&files.modes, &shape, &mode_values)?;
-    drop(mode_values);
+    write_modes_npy(&files.modes, &shape, modes)?;
 
     let mut mean_shape = axes;
     mean_shape.push(n_channels);
@@ -137,6 +135,27 @@ pub fn write_basis_files(
         &rows,
     )?;
     Ok(files)
+}
+
+/// Writes the modes (`n_dof × r`, one mode per column) as the C-order `(r, …)` float64 array
+/// of `modes.npy`: mode after mode, each streamed through a small buffer, so no second copy of
+/// the modes is ever held.
+fn write_modes_npy(path: &Path, shape: &[usize], modes: MatRef<'_, f64>) -> Result<(), IoError> {
+    let header = header_bytes(NpyDtype::F8, shape);
+    write_atomic(path, |w| {
+        w.write_all(&header)?;
+        let mut bytes = Vec::with_capacity(8 * 8192);
+        for column in modes.col_iter() {
+            for value in column.iter() {
+                bytes.extend_from_slice(&value.to_le_bytes());
+                if bytes.len() == bytes.capacity() {
+                    w.write_all(&bytes)?;
+                    bytes.clear();
+                }
+            }
+        }
+        w.write_all(&bytes)
+    })
 }
 
 /// Reads and validates a basis for a domain with `n_channels` channels per point; `files` is

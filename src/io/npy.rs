@@ -485,7 +485,7 @@ pub fn read_npy_f64(path: &Path) -> Result<(Vec<usize>, Vec<f64>), IoError> {
 
 /// The header bytes (magic through the newline) of a format-1.0 C-order file, padded so the
 /// data start on a 64-byte boundary as NumPy does.
-fn header_bytes(dtype: NpyDtype, shape: &[usize]) -> Vec<u8> {
+pub(super) fn header_bytes(dtype: NpyDtype, shape: &[usize]) -> Vec<u8> {
     let dict = format!(
         "{{'descr': '{}', 'fortran_order': False, 'shape': {}, }}",
         dtype.descr(),
