@@ -2,7 +2,6 @@
 
 use std::path::PathBuf;
 
-use anyhow::Context;
 use clap::Args;
 
 use crate::io::table::{read_csv_table, write_csv_table};
@@ -44,8 +43,8 @@ pub fn run(args: MergeArgs) -> anyhow::Result<()> {
     let merged = merge_outcomes(outcomes)
         .map_err(|message| IoError::invalid(&args.shards[0], "shards", message))?;
     let rows: Vec<Vec<String>> = merged.iter().map(CellOutcome::to_row).collect();
-    write_csv_table(&args.out, &TIDY_HEADER, &rows)
-        .with_context(|| format!("writing {}", args.out.display()))?;
+    // The io error names the file and carries the OS error once; no second wrapping here.
+    write_csv_table(&args.out, &TIDY_HEADER, &rows)?;
     println!(
         "merged {} cells ({} rows read from {} tables) into {}",
         merged.len(),
