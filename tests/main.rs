@@ -6,6 +6,7 @@ mod bad_inputs;
 mod basis;
 mod basis_cli;
 mod common;
+mod hardening;
 mod plan;
 mod render;
 mod select;

@@ -195,55 +195,46 @@ fn sweep_is_bit_identical_across_threads_and_shards() {
 
 #[test]
 fn killed_sweep_resumes_to_the_same_table() {
+    use super::hardening::{complete_lines, journals, kill_once_recorded};
     let dir = tempfile::tempdir().unwrap();
-    let whole = dir.path().join("whole");
-    assert_ok(&sweep(&whole, &["--runs", "40"], 2));
-    let reference = std::fs::read(whole.join("studies.csv")).unwrap();
-
-    let resumed = dir.path().join("resumed");
     let site = fixture();
-    let mut child = Command::new(bin())
-        .args([
+    // More runs make each cell slower: an attempt whose child finished before the kill
+    // proves nothing, so it is retried with slower cells.
+    for runs in ["40", "160", "640"] {
+        let whole = dir.path().join(format!("whole-{runs}"));
+        assert_ok(&sweep(&whole, &["--runs", runs], 2));
+        let reference = std::fs::read(whole.join("studies.csv")).unwrap();
+        let total = complete_lines(&journals(&whole, ".sweep-journal")[0]);
+
+        let resumed = dir.path().join(format!("resumed-{runs}"));
+        let args = [
             "sweep",
             path_str(&site),
             "--over",
             "count",
             "--runs",
-            "40",
+            runs,
             "--out",
             path_str(&resumed),
-        ])
-        .env("RAYON_NUM_THREADS", "2")
-        .spawn()
-        .unwrap();
-    // Kill it once at least one cell is recorded (or let it finish if it is too quick).
-    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(120);
-    loop {
-        let recorded = std::fs::read_dir(&resumed)
-            .map(|entries| {
-                entries.filter_map(Result::ok).any(|e| {
-                    e.file_name()
-                        .to_string_lossy()
-                        .starts_with(".sweep-journal")
-                        && std::fs::read_to_string(e.path()).is_ok_and(|t| t.lines().count() >= 1)
-                })
-            })
-            .unwrap_or(false);
-        if recorded || child.try_wait().unwrap().is_some() || std::time::Instant::now() > deadline {
-            break;
+        ];
+        let killed = kill_once_recorded(&args, &resumed, ".sweep-journal");
+        if killed.finished_first || killed.recorded >= total {
+            continue;
         }
-        std::thread::sleep(std::time::Duration::from_millis(20));
+        // Killed midway: part of the cells recorded, no table yet.
+        assert!(killed.recorded >= 1 && killed.recorded < total);
+        assert!(!resumed.join("studies.csv").exists());
+        assert_ok(&sweep(&resumed, &["--runs", runs], 2));
+        // The recorded cells were skipped: each cell is in the journal exactly once.
+        let journal = journals(&resumed, ".sweep-journal");
+        assert_eq!(journal.len(), 1);
+        assert_eq!(complete_lines(&journal[0]), total);
+        assert_same_table(
+            &std::fs::read(resumed.join("studies.csv")).unwrap(),
+            &reference,
+            "resumed",
+        );
+        return;
     }
-    let _ = child.kill();
-    let _ = child.wait();
-    assert!(
-        !resumed.join("studies.csv").exists()
-            || std::fs::read(resumed.join("studies.csv")).unwrap() == reference
-    );
-    assert_ok(&sweep(&resumed, &["--runs", "40"], 2));
-    assert_same_table(
-        &std::fs::read(resumed.join("studies.csv")).unwrap(),
-        &reference,
-        "resumed",
-    );
+    panic!("the sweep finished before every kill attempt; the test proved nothing");
 }
