@@ -17,7 +17,7 @@ use crate::io::{Plane, Site};
 
 /// Changes whenever the generator's output for the same site would change; part of the key
 /// that decides whether `crowsnest synth` can skip a run.
-pub const SOLVER_VERSION: &str = "crowsnest-synth-2";
+pub const SOLVER_VERSION: &str = "crowsnest-synth-3";
 
 /// Progress of a run, for a progress bar.
 #[derive(Debug, Clone, Copy)]

@@ -25,7 +25,10 @@ pub use solver::{Edge, Lattice, LatticeSetup, Side};
 
 use crate::io::Plane;
 
-/// Why a site cannot be generated. All but [`SynthError::Unstable`] are input problems.
+/// Why a site cannot be generated. Every variant is an input problem (exit code 2):
+/// [`SynthError::Unstable`] too, because the solver is stable at the demo sites' settings
+/// and a blow-up comes from the site's own wind, turbulence or grid, which the message tells
+/// the user to change.
 #[derive(Debug, thiserror::Error)]
 pub enum SynthError {
     #[error(
