@@ -14,11 +14,13 @@ mkdir -p "$work"
 
 cargo build --release --bench twin
 bin=$(ls -t "${CARGO_TARGET_DIR:-target}"/release/deps/twin-* | grep -v '\.d$' | head -n1)
+echo "== load before: $(uptime)"
 echo "== crowsnest"
 "$bin" "$n_kalman" "$n_enkf" | tee "$work/rust.txt"
 echo "== filterpy"
 env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE OPENBLAS_NUM_THREADS=1 python3 bench/twin_ref.py "$n_ref" | tee "$work/ref.txt"
 
+echo "== load after: $(uptime)"
 get() { awk -v k="$1" '$1 == "RESULT" && $2 == k {print $3}' "$work/$2"; }
 awk -v w1="$(get kalman_runs_per_s_1t rust.txt)" -v w2="$(get kalman_runs_per_s_2t rust.txt)" \
     -v c1="$(get kalman_runs_per_cpu_s_1t rust.txt)" -v c2="$(get kalman_runs_per_cpu_s_2t rust.txt)" \

@@ -16,7 +16,8 @@ use crate::sensors::build_blocks;
 use crate::twin::metrics::Summary;
 use crate::twin::tables::{curves_rows, runs_rows, CURVES_HEADER, RUNS_HEADER};
 use crate::twin::{
-    layout_blocks, score_layout, FilterKind, ModelKind, NudgeGain, ScoreResult, TwinSettings,
+    layout_blocks, layout_id_of, score_layout, FilterKind, ModelKind, NudgeGain, ScoreResult,
+    TwinSettings,
 };
 
 use super::BadArgument;
@@ -155,15 +156,14 @@ pub fn run(args: ScoreArgs) -> anyhow::Result<()> {
     let block_set = build_blocks(&site, &basis)?;
     let blocks = layout_blocks(&site, &block_set.blocks, &layout_rows)
         .with_context(|| format!("layout {}", args.layout.display()))?;
-    let layout_id = args
-        .layout
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
+    // The seed id comes from the sensors, not the file name (same draws as a sweep cell).
+    let layout_id = layout_id_of(&site, &blocks);
 
+    // The runs finish in blocks (32 at a time for the gain filters, one by one for the EnKF):
+    // the bar moves per block and counts runs.
     let bar = ProgressBar::new(settings.run.n_runs as u64);
     bar.set_style(
-        ProgressStyle::with_template("{prefix} [{bar:30}] {pos}/{len} runs, {eta} left")
+        ProgressStyle::with_template("{prefix} [{bar:30}] {pos}/{len} runs done, {eta} left")
             .unwrap_or_else(|_| ProgressStyle::default_bar())
             .progress_chars("=> "),
     );
@@ -182,7 +182,13 @@ pub fn run(args: ScoreArgs) -> anyhow::Result<()> {
     bar.finish_and_clear();
 
     let unit = field_unit(&site);
-    print_summary(&result, blocks.len(), basis.n_modes(), &unit);
+    print_summary(
+        &result,
+        &args.layout.display().to_string(),
+        blocks.len(),
+        basis.n_modes(),
+        &unit,
+    );
     let curves = args.out.join("curves.csv");
     let runs = args.out.join("runs.csv");
     write_csv_table(&curves, &CURVES_HEADER, &curves_rows(&result))?;
@@ -204,12 +210,12 @@ fn field_unit(site: &crate::io::Site) -> String {
     }
 }
 
-fn print_summary(result: &ScoreResult, n_sensors: usize, n_modes: usize, unit: &str) {
+fn print_summary(result: &ScoreResult, layout: &str, n_sensors: usize, n_modes: usize, unit: &str) {
     let s = &result.settings;
     let m = &result.model_report;
     println!(
         "layout {}: {} sensors ({} reading rows), {} POD modes; filter {}, model {}",
-        result.layout_id,
+        layout,
         n_sensors,
         result.n_rows,
         n_modes,
@@ -262,6 +268,9 @@ fn print_summary(result: &ScoreResult, n_sensors: usize, n_modes: usize, unit: &
     line("free run, time-mean", &result.free_mean_rmse);
     line("ratio to free run (-)", &result.ratio_to_free);
     if result.mean_spread.n > 0 {
+        // The spread estimates the modal error (the truncation residual is outside the
+        // filter's state), so the two stand together.
+        line("modal error, time-mean", &result.mean_modal_rmse);
         line("filter spread, time-mean", &result.mean_spread);
     }
     println!(
@@ -269,15 +278,22 @@ fn print_summary(result: &ScoreResult, n_sensors: usize, n_modes: usize, unit: &
         result.truncation_rmse
     );
     if result.n_diverged > 0 {
-        let first = result.runs.iter().find_map(|r| r.divergence.as_ref());
+        // Count per reason, in order of first appearance.
+        let mut reasons: Vec<(String, usize, usize)> = Vec::new();
+        for d in result.runs.iter().filter_map(|r| r.divergence.as_ref()) {
+            match reasons.iter_mut().find(|(r, _, _)| *r == d.reason) {
+                Some(entry) => entry.1 += 1,
+                None => reasons.push((d.reason.clone(), 1, d.step)),
+            }
+        }
         println!(
-            "diverged runs: {} of {}{}",
+            "diverged runs: {} of {} (left out of the filter's statistics; see runs.csv)",
             result.n_diverged,
-            result.runs.len(),
-            first
-                .map(|d| format!(" (first: step {}, {})", d.step, d.reason))
-                .unwrap_or_default()
+            result.runs.len()
         );
+        for (reason, count, step) in reasons {
+            println!("  {count} run(s): {reason} (first at test step {step})");
+        }
     } else {
         println!("diverged runs: 0");
     }

@@ -170,7 +170,9 @@ impl<'a> StudyContext<'a> {
         interval_scale: f64,
     ) -> Result<ScoreResult, SweepError> {
         let case = self.case_for(blocks, interval_scale);
-        let prepared = prepare_with_model(case, layout_id, self.split, self.model.clone());
+        // Seeds come from the sensors themselves, as in `crowsnest score`.
+        let seed_id = crate::twin::layout_id(blocks.iter().map(|&b| self.problem.block_name(b)));
+        let prepared = prepare_with_model(case, &seed_id, self.split, self.model.clone());
         run_monte_carlo(&prepared, &settings.run, &|_, _| {})
             .map_err(|e| SweepError::cell(layout_id, e))
     }

@@ -11,7 +11,7 @@ use faer::{Mat, MatRef};
 use rand::Rng;
 use rand_distr::StandardNormal;
 
-use super::dense::{col_major, dot, joseph_update, kalman_gain, symmetrize};
+use super::dense::{cholesky_lower, col_major, dot, joseph_update, kalman_gain, symmetrize};
 use super::schedule::Schedule;
 use super::ReducedModel;
 
@@ -101,6 +101,14 @@ pub fn kalman_gains(
             });
             break;
         }
+        // Checked once per step of the shared sequence (not per run): a Cholesky factor.
+        if cholesky_lower(p.as_ref()).is_none() {
+            out.divergence = Some(Divergence {
+                step,
+                reason: "covariance P is no longer positive definite".into(),
+            });
+            break;
+        }
         if let Some(tr) = out.posterior_trace.as_mut() {
             tr[step] = trace;
         }
@@ -112,10 +120,12 @@ pub fn kalman_gains(
 }
 
 /// Static gains, one per reporting pattern: `gain_for(rows)` returns the `n_modes × n_rows`
-/// gain for the given rows (OI, nudging). `None` from `gain_for` marks divergence.
+/// gain for the given rows (OI, nudging; `filter` names it in messages). `None` from
+/// `gain_for` marks divergence.
 pub fn static_gains(
     n_modes: usize,
     schedule: &Schedule,
+    filter: &str,
     mut gain_for: impl FnMut(&[usize]) -> Option<Mat<f64>>,
 ) -> GainSequence {
     let n_steps = schedule.n_steps();
@@ -139,7 +149,11 @@ pub fn static_gains(
                     .unwrap_or(0);
                 out.divergence = Some(Divergence {
                     step: first,
-                    reason: "static gain: H B Hᵀ + R is not positive definite".into(),
+                    reason: if filter == "nudging" {
+                        "nudging gain: the sensors read none of the modes (Hᵀ R⁻¹ H is zero or not finite)".into()
+                    } else {
+                        format!("{filter} gain: H B Hᵀ + R is not positive definite")
+                    },
                 });
                 return out;
             }

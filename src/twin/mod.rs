@@ -31,8 +31,8 @@ pub mod wire;
 pub use error::TwinError;
 pub use model::{ModelReport, ReducedModel, TimeSplit};
 pub use montecarlo::{
-    prepare, prepare_with_model, run_monte_carlo, Prepared, RunOutcome, ScoreResult, StepStats,
-    TwinCase,
+    layout_id, prepare, prepare_with_model, run_monte_carlo, Prepared, RunOutcome, ScoreResult,
+    StepStats, TwinCase,
 };
 pub use settings::{FilterKind, ModelKind, ModelSettings, NudgeGain, RunSettings, TwinSettings};
-pub use wire::{case_from_site, layout_blocks, score_layout, truth_readings};
+pub use wire::{case_from_site, layout_blocks, layout_id_of, score_layout, truth_readings};

@@ -205,7 +205,11 @@ impl ReducedModel {
         if !quadratic || settings.tikhonov == 0.0 {
             let model = fit_with(settings.tikhonov)?;
             if quadratic {
-                model.check_bounded(current)?;
+                model.check_bounded(
+                    current,
+                    "with no Tikhonov regularisation (a weight of 0 cannot be raised); set \
+                     --tikhonov > 0 or use the linear model",
+                )?;
             }
             return Ok(model);
         }
@@ -217,7 +221,12 @@ impl ReducedModel {
         for k in 0..=QUADRATIC_ESCALATIONS {
             let weight = settings.tikhonov * 10f64.powi(k as i32);
             let mut model = fit_with(weight)?;
-            match model.check_bounded(current) {
+            let note = format!(
+                "even with the quadratic Tikhonov weight raised from {:.1e} to {weight:.1e} \
+                 ({k} tenfold raises); try a larger --tikhonov or the linear model",
+                settings.tikhonov
+            );
+            match model.check_bounded(current, &note) {
                 Ok(()) => {
                     model.report.quadratic_tikhonov = Some(weight);
                     return Ok(model);
@@ -225,13 +234,13 @@ impl ReducedModel {
                 Err(e) => last_err = Some(e),
             }
         }
-        Err(last_err.expect("at least one escalation ran"))
+        Err(last_err.unwrap_or_else(|| TwinError::FitFailed("no quadratic fit was tried".into())))
     }
 
     /// Runs the model freely for `n_train` steps from 8 evenly spaced training states, each
     /// as is and shifted by ±0.5 of every mode's RMS (signs alternating), and refuses it when
     /// a state leaves 10× the largest training norm or stops being finite.
-    fn check_bounded(&self, train: MatRef<'_, f64>) -> Result<(), TwinError> {
+    fn check_bounded(&self, train: MatRef<'_, f64>, note: &str) -> Result<(), TwinError> {
         let n_train = train.nrows();
         let max_norm = (0..n_train)
             .map(|t| train.row(t).iter().map(|v| v * v).sum::<f64>().sqrt())
@@ -258,10 +267,8 @@ impl ReducedModel {
                             message: format!(
                                 "a free run from training state {t0}{} reaches coefficient norm \
                                  {norm:.3e} at step {step}, beyond 10× the largest training norm \
-                                 ({max_norm:.3e}), even with the quadratic Tikhonov weight raised \
-                                 to {:.1e}; try a larger --tikhonov or the linear model",
+                                 ({max_norm:.3e}), {note}",
                                 if shift > 0.0 { " (shifted)" } else { "" },
-                                self.report.quadratic_tikhonov.unwrap_or(f64::NAN),
                             ),
                         });
                     }
@@ -585,6 +592,111 @@ mod tests {
         let s = fitted.report.damping_scale.unwrap();
         assert!((s - 0.999 / 1.05).abs() < 1e-9);
         assert!((fitted.report.spectral_radius - 0.999).abs() < 1e-9);
+    }
+
+    /// The Tikhonov fit equals the closed-form ridge solution θ = (XᵀX + Λ)⁻¹ XᵀY (Hoerl &
+    /// Kennard 1970, "Ridge regression: biased estimation for nonorthogonal problems",
+    /// Technometrics 12, eq. 2.2) with Λ = λ · (mean squared feature column norm) on the linear
+    /// features and 0 on the constant, computed here by normal equations and an LU solve.
+    #[test]
+    fn tikhonov_fit_equals_closed_form_ridge() {
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(21);
+        let (r, n) = (3, 40);
+        let data = Mat::from_fn(n, r, |_, _| StandardNormal.sample(&mut rng));
+        let lambda = 0.3;
+        let settings = ModelSettings {
+            model: ModelKind::Linear,
+            tikhonov: lambda,
+            damping: 0.999,
+            ..ModelSettings::default()
+        };
+        let fitted = ReducedModel::fit(data.as_ref(), &settings).unwrap();
+        let n_pairs = n - 1;
+        let x = Mat::from_fn(
+            n_pairs,
+            r + 1,
+            |t, k| if k < r { data[(t, k)] } else { 1.0 },
+        );
+        let y = Mat::from_fn(n_pairs, r, |t, j| data[(t + 1, j)]);
+        let scale = (0..r)
+            .map(|k| (0..n_pairs).map(|t| x[(t, k)] * x[(t, k)]).sum::<f64>())
+            .sum::<f64>()
+            / r as f64;
+        let mut normal = x.transpose() * &x;
+        for k in 0..r {
+            normal[(k, k)] += lambda * scale;
+        }
+        let theta = normal.partial_piv_lu().inverse() * (x.transpose() * &y);
+        assert!(fitted.report.damping_scale.is_none());
+        for i in 0..r {
+            for j in 0..r {
+                assert!((fitted.a[(i, j)] - theta[(j, i)]).abs() < 1e-10);
+            }
+            assert!((fitted.c[i] - theta[(r, i)]).abs() < 1e-10);
+        }
+        // The penalty matters: the unregularised fit differs.
+        let plain = ReducedModel::fit(data.as_ref(), &exact(ModelKind::Linear)).unwrap();
+        assert!((plain.a[(0, 0)] - fitted.a[(0, 0)]).abs() > 1e-3);
+    }
+
+    /// Q is the second moment of the one-step residuals plus a floor of 1e-9 × the mean
+    /// coefficient second moment, checked by hand: pairs 1→2, 2→1, 1→2, 2→2 give the
+    /// least-squares line a' = −0.5 a + 2.5 (slope Sxy/Sxx = −0.5/1), residuals 0, −0.5, 0, 0.5,
+    /// so Q = 0.5/4 = 0.125, floor 1e-9 × (1 + 4 + 1 + 4)/4 = 2.5e-9, one-step RMS √0.125.
+    #[test]
+    fn q_from_residuals_with_floor_matches_hand_computation() {
+        let data = faer::mat![[1.0], [2.0], [1.0], [2.0], [2.0]];
+        let fitted = ReducedModel::fit(data.as_ref(), &exact(ModelKind::Linear)).unwrap();
+        assert!((fitted.a[(0, 0)] + 0.5).abs() < 1e-12);
+        assert!((fitted.c[0] - 2.5).abs() < 1e-12);
+        assert!((fitted.q[(0, 0)] - (0.125 + 2.5e-9)).abs() < 1e-15);
+        assert!((fitted.report.one_step_rms - 0.125f64.sqrt()).abs() < 1e-12);
+        // Noise-free data: the residuals vanish and the floor alone keeps Q positive definite.
+        let alt = faer::mat![[1.0], [0.0], [1.0], [0.0], [1.0]];
+        let fitted = ReducedModel::fit(alt.as_ref(), &exact(ModelKind::Linear)).unwrap();
+        assert!(
+            (fitted.q[(0, 0)] - 1e-9 * 0.5).abs() < 1e-20,
+            "{}",
+            fitted.q[(0, 0)]
+        );
+    }
+
+    /// Data from a_{t+1} = 0.923 a_t + a_t², started just above its unstable fixed point 0.077:
+    /// the exact quadratic fit runs away in free runs, so with a tiny base weight the fit raises
+    /// the quadratic Tikhonov weight tenfold until free runs stay bounded and reports it; with
+    /// weight 0 it cannot raise it and says so.
+    #[test]
+    fn quadratic_weight_is_escalated_until_bounded() {
+        let n = 280;
+        let mut data = Mat::<f64>::zeros(n, 2);
+        let mut x = 0.077 + 1e-10;
+        for t in 0..n {
+            data[(t, 0)] = x;
+            data[(t, 1)] = 0.5 * (0.3 * t as f64).sin();
+            x = 0.923 * x + x * x;
+        }
+        let base = 1e-12;
+        let settings = ModelSettings {
+            model: ModelKind::Quadratic,
+            tikhonov: base,
+            ..ModelSettings::default()
+        };
+        let fitted = ReducedModel::fit(data.as_ref(), &settings).unwrap();
+        let used = fitted.report.quadratic_tikhonov.unwrap();
+        let raises = (used / base).log10().round();
+        assert!(raises >= 1.0, "weight {used:e} was not raised");
+        assert!((used / base - 10f64.powf(raises)).abs() < 1e-6 * used / base);
+        let zero = ReducedModel::fit(data.as_ref(), &exact(ModelKind::Quadratic));
+        match zero {
+            Err(TwinError::UnstableModel { message, .. }) => {
+                assert!(message.contains("no Tikhonov regularisation"), "{message}");
+                assert!(!message.contains("0.0e0"), "{message}");
+            }
+            other => panic!(
+                "expected an unstable model, got {:?}",
+                other.map(|m| m.report)
+            ),
+        }
     }
 
     #[test]

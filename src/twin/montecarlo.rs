@@ -2,7 +2,7 @@
 //! model fit, row-major copies of the truth), [`run_monte_carlo`] builds the shared gains for a
 //! setting and runs R independent twin experiments in parallel with rayon.
 //!
-//! Determinism: run `i` draws from ChaCha20 generators seeded by a splitmix64 mix of (master
+//! Determinism: run `i` draws from ChaCha8 generators seeded by a splitmix64 mix of (master
 //! seed, FNV-1a hash of the layout id, setting id) with stream `4 i + purpose` (background,
 //! readings, ensemble), so a run's numbers do not depend on which thread ran it; per-run
 //! results are collected in run order and reduced sequentially, so summaries are bit-identical
@@ -13,11 +13,10 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 
 use faer::Mat;
 use rand::SeedableRng;
-use rand_chacha::ChaCha20Rng;
 use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
-use super::batch::{gain_block, RUN_BLOCK};
+use super::batch::{fused_ops, gain_block, RUN_BLOCK};
 use super::dense::row_major;
 use super::enkf::{run_enkf, spread_trace, EnkfSettings};
 use super::kalman::{
@@ -171,8 +170,25 @@ pub struct ScoreResult {
     pub free_mean_rmse: Summary,
     pub ratio_to_free: Summary,
     pub mean_spread: Summary,
+    /// Time-mean modal error `sqrt(‖a − â‖² / norm)`: what the spread estimates.
+    pub mean_modal_rmse: Summary,
     /// Time-mean truncation floor over the test span.
     pub truncation_rmse: f64,
+}
+
+/// The id that seeds a layout's random streams, derived from its sensors alone: the
+/// `candidate:kind` pairs, sorted, joined with `;`. The name of a layout file changes nothing,
+/// and `crowsnest score` and a sweep cell that score the same sensors under the same setting
+/// draw the same numbers.
+pub fn layout_id<C: AsRef<str>, K: AsRef<str>>(
+    sensors: impl IntoIterator<Item = (C, K)>,
+) -> String {
+    let mut pairs: Vec<String> = sensors
+        .into_iter()
+        .map(|(c, k)| format!("{}:{}", c.as_ref(), k.as_ref()))
+        .collect();
+    pairs.sort();
+    pairs.join(";")
 }
 
 /// 64-bit FNV-1a (Fowler–Noll–Vo), a fixed hash that does not change between Rust versions.
@@ -197,16 +213,15 @@ pub(super) const STREAM_BACKGROUND: u64 = 0;
 pub(super) const STREAM_READINGS: u64 = 1;
 const STREAM_ENSEMBLE: u64 = 2;
 
+/// The generator of every run stream: ChaCha with 8 rounds (Bernstein 2008; the 8-round
+/// variant is rand's fast choice and passes the statistical batteries), a counter-based
+/// stream cipher whose `set_stream` gives each (run, purpose) its own independent stream.
+pub type RunRng = rand_chacha::ChaCha8Rng;
+
 /// The generator for `purpose` of run `run_idx`.
-pub fn run_rng(
-    seed: u64,
-    layout_hash: u64,
-    setting_id: u64,
-    run_idx: u64,
-    purpose: u64,
-) -> ChaCha20Rng {
+pub fn run_rng(seed: u64, layout_hash: u64, setting_id: u64, run_idx: u64, purpose: u64) -> RunRng {
     let key = mix(mix(mix(seed) ^ layout_hash) ^ setting_id);
-    let mut rng = ChaCha20Rng::seed_from_u64(key);
+    let mut rng = RunRng::seed_from_u64(key);
     rng.set_stream(run_idx.wrapping_mul(4).wrapping_add(purpose));
     rng
 }
@@ -283,6 +298,12 @@ pub fn run_monte_carlo(
         RUN_BLOCK
     };
     let n_blocks = n_runs.div_ceil(block);
+    let test_span = prep.test_span();
+    let fused = if settings.filter == FilterKind::Enkf {
+        None
+    } else {
+        fused_ops(&shared, &test_span)
+    };
     let blocks: Vec<Vec<RunOutcome>> = (0..n_blocks)
         .into_par_iter()
         .map(|block_idx| {
@@ -292,7 +313,7 @@ pub fn run_monte_carlo(
                 runs.map(|run_idx| one_run(&shared, &span, run_idx))
                     .collect()
             } else {
-                gain_block(&shared, &span, runs)
+                gain_block(&shared, &span, fused.as_ref(), runs)
             };
             progress(
                 done.fetch_add(out.len(), Ordering::Relaxed) + out.len(),
@@ -345,19 +366,20 @@ pub(super) fn shared_for<'a>(
                     0.0
                 }
             });
-            Some(static_gains(n_modes, &schedule, |rows| {
-                oi_gain(b.as_ref(), case.rows.h.as_ref(), &noise_var, rows)
-            }))
+            Some(static_gains(
+                n_modes,
+                &schedule,
+                "optimal interpolation",
+                |rows| oi_gain(b.as_ref(), case.rows.h.as_ref(), &noise_var, rows),
+            ))
         }
         FilterKind::Nudge => {
             let strength = match settings.nudge_gain {
                 NudgeGain::Fixed(g) => g,
-                NudgeGain::Tuned => {
-                    tune_nudging(prep, settings, &noise_sd, &noise_var, background_sd)?
-                }
+                NudgeGain::Tuned => tune_nudging(prep, settings)?,
             };
             nudge_strength = Some(strength);
-            Some(static_gains(n_modes, &schedule, |rows| {
+            Some(static_gains(n_modes, &schedule, "nudging", |rows| {
                 nudging_gain(case.rows.h.as_ref(), &noise_var, rows, strength)
             }))
         }
@@ -395,7 +417,7 @@ pub(super) fn step_rmse(
     )
 }
 
-pub(super) fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut ChaCha20Rng) -> Vec<f64> {
+pub(super) fn background(shared: &Shared<'_>, span: &Span<'_>, rng: &mut RunRng) -> Vec<f64> {
     let r = shared.prep.case.n_modes();
     (0..r)
         .map(|j| {
@@ -553,80 +575,84 @@ pub(super) fn free_run(model: &ReducedModel, span: &Span<'_>, a0: &[f64], norm: 
         .collect()
 }
 
-/// Runs of the training span the nudging strength is tuned on (fixed streams, so the
-/// objective is a deterministic function of the strength).
-const N_TUNING_RUNS: u64 = 3;
+/// Runs of the training span the nudging strength is tuned on: one full block, on streams no
+/// scoring run uses, so the objective is a smooth, deterministic function of the strength.
+pub const N_TUNING_RUNS: usize = RUN_BLOCK;
 
-/// Nudging strength minimising the time-mean RMSE of nudged runs on the training span.
-fn tune_nudging(
+/// First run index of the tuning streams (far above any scoring run).
+const FIRST_TUNING_RUN: usize = (u32::MAX / 2) as usize;
+
+/// Time-mean field RMSE on the **training** span of nudging at `strength` (the objective the
+/// tuned strength minimises); `INFINITY` when a run diverges. The training span is cut into
+/// windows as long as the test span (at most 8); in each, [`N_TUNING_RUNS`] runs start from
+/// the window's first state plus the background perturbation and read its truth through the
+/// layout's sensors with fresh noise, as the scoring runs do on the test span.
+pub fn nudging_training_score(
     prep: &Prepared,
     settings: &RunSettings,
-    noise_sd: &[f64],
-    noise_var: &[f64],
-    background_sd: f64,
+    strength: f64,
 ) -> Result<f64, TwinError> {
-    let span = prep.span(0, prep.split.n_train);
-    let schedule = Schedule::new(
-        &prep.case.rows,
-        prep.case.dt_s,
-        span.n_steps,
-        settings.every,
-    )?;
-    let h = prep.case.rows.h.as_ref();
-    let first_tuning_run = u64::MAX / 8; // streams no scoring run uses
-    let objective = |strength: f64| -> f64 {
-        let gains = static_gains(prep.case.n_modes(), &schedule, |rows| {
-            nudging_gain(h, noise_var, rows, strength)
-        });
-        let mut total = 0.0;
-        for k in 0..N_TUNING_RUNS {
-            let stream = |purpose| {
-                run_rng(
-                    settings.seed,
-                    prep.layout_hash,
-                    settings.setting_id,
-                    first_tuning_run + k,
-                    purpose,
-                )
-            };
-            let mut bg_rng = stream(STREAM_BACKGROUND);
-            let a0: Vec<f64> = (0..prep.case.n_modes())
-                .map(|j| {
-                    span.coeffs_rm[j]
-                        + background_sd
-                            * <StandardNormal as Distribution<f64>>::sample(
-                                &StandardNormal,
-                                &mut bg_rng,
-                            )
-                })
-                .collect();
-            let mut readings = NoisyReadings {
-                truth: span.readings,
-                n_rows: prep.case.rows.n_rows(),
-                noise_sd,
-                rng: stream(STREAM_READINGS),
-            };
-            let mut sum = 0.0;
-            let ok = run_with_gains(
-                &prep.model,
-                &prep.h_rm,
-                &prep.case.rows.offset,
-                &schedule,
-                &gains,
-                &mut readings,
-                &a0,
-                |step, est| {
-                    sum += step_rmse(&span, step, est, prep.case.field_norm).0;
-                },
-            );
-            if ok.is_err() {
-                return f64::INFINITY;
-            }
-            total += sum / span.n_steps as f64;
-        }
-        total / N_TUNING_RUNS as f64
+    let fixed = RunSettings {
+        nudge_gain: NudgeGain::Fixed(strength),
+        ..settings.clone()
     };
-    tune_strength(&objective)
+    let (mut shared, _) = shared_for(prep, &fixed)?;
+    // Windows of the training span as long as the test span (so the objective weighs the
+    // start-up from the background as the scoring runs do), non-overlapping, from its start.
+    let n_train = prep.split.n_train;
+    let len = prep.split.n_test.min(n_train);
+    let n_windows = (n_train / len).clamp(1, 8);
+    shared.schedule = Schedule::new(&prep.case.rows, prep.case.dt_s, len, settings.every)?;
+    let h = prep.case.rows.h.as_ref();
+    let noise_var = shared.noise_var.clone();
+    shared.gains = Some(static_gains(
+        prep.case.n_modes(),
+        &shared.schedule,
+        "nudging",
+        |rows| nudging_gain(h, &noise_var, rows, strength),
+    ));
+    let mut total = 0.0;
+    let mut count = 0usize;
+    for w in 0..n_windows {
+        let span = prep.span(w * len, len);
+        let fused = fused_ops(&shared, &span);
+        let first = FIRST_TUNING_RUN + w * N_TUNING_RUNS;
+        let runs = gain_block(&shared, &span, fused.as_ref(), first..first + N_TUNING_RUNS);
+        for r in &runs {
+            if r.divergence.is_some() || !r.mean_rmse.is_finite() {
+                return Ok(f64::INFINITY);
+            }
+            total += r.mean_rmse;
+            count += 1;
+        }
+    }
+    Ok(total / count as f64)
+}
+
+/// Nudging strength minimising [`nudging_training_score`]: the best of a log-spaced grid over
+/// [`super::nudge::MIN_TUNED_STRENGTH`, 1], refined by Brent's method in log γ between the grid
+/// neighbours of the best point; the refined value is kept only when it scores better.
+fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<f64, TwinError> {
+    let grid = super::nudge::strength_grid();
+    let mut scores = Vec::with_capacity(grid.len());
+    for &g in &grid {
+        scores.push(nudging_training_score(prep, settings, g)?);
+    }
+    let best = (0..grid.len())
+        .min_by(|&i, &j| scores[i].total_cmp(&scores[j]).then(i.cmp(&j)))
+        .unwrap_or(0);
+    let lo = grid[best.saturating_sub(1)];
+    let hi = grid[(best + 1).min(grid.len() - 1)];
+    let objective = |log_g: f64| -> f64 {
+        nudging_training_score(prep, settings, log_g.exp()).unwrap_or(f64::INFINITY)
+    };
+    let refined = tune_strength(&objective, lo.ln(), hi.ln())?.exp();
+    let refined_score = nudging_training_score(prep, settings, refined)?;
+    Ok(if refined_score < scores[best] {
+        refined
+    } else {
+        grid[best]
+    })
 }
 
 fn summarise(
@@ -639,29 +665,24 @@ fn summarise(
     let n_steps = span.n_steps;
     let norm = prep.case.field_norm;
     let ok: Vec<&RunOutcome> = runs.iter().filter(|r| r.divergence.is_none()).collect();
+    // Per-step statistics over the runs, each run's curve read once in order (runs outer,
+    // steps inner) and summed in run order, so the numbers do not depend on the threads.
+    let rmse = StepMoments::of(&runs, |r| &r.rmse, n_steps);
+    let free = StepMoments::of(&runs, |r| &r.free_rmse, n_steps);
+    let modal = StepMoments::of(&runs, |r| &r.modal_rmse, n_steps);
+    let spread = StepMoments::of(&runs, |r| &r.spread, n_steps);
     let curves = (0..n_steps)
-        .map(|step| {
-            let at = |f: &dyn Fn(&RunOutcome) -> f64| -> Vec<f64> {
-                runs.iter().map(f).filter(|v| v.is_finite()).collect()
-            };
-            let rmse = at(&|r| r.rmse[step]);
-            let free = at(&|r| r.free_rmse[step]);
-            let modal = at(&|r| r.modal_rmse[step]);
-            let spread = at(&|r| r.spread[step]);
-            let (m, sd) = mean_std(&rmse);
-            let (fm, fsd) = mean_std(&free);
-            StepStats {
-                step,
-                time_s: step as f64 * prep.case.dt_s,
-                mean_rmse: m,
-                std_rmse: sd,
-                free_mean_rmse: fm,
-                free_std_rmse: fsd,
-                mean_modal_rmse: mean_std(&modal).0,
-                mean_spread: mean_std(&spread).0,
-                truncation_rmse: (span.residual_sq[step] / norm).sqrt(),
-                n_runs_ok: rmse.len(),
-            }
+        .map(|step| StepStats {
+            step,
+            time_s: step as f64 * prep.case.dt_s,
+            mean_rmse: rmse.mean[step],
+            std_rmse: rmse.std[step],
+            free_mean_rmse: free.mean[step],
+            free_std_rmse: free.std[step],
+            mean_modal_rmse: modal.mean[step],
+            mean_spread: spread.mean[step],
+            truncation_rmse: (span.residual_sq[step] / norm).sqrt(),
+            n_runs_ok: rmse.n[step],
         })
         .collect::<Vec<_>>();
     let pick = |f: &dyn Fn(&RunOutcome) -> f64| -> Vec<f64> { ok.iter().map(|r| f(r)).collect() };
@@ -682,25 +703,56 @@ fn summarise(
         free_mean_rmse: Summary::of(&runs.iter().map(|r| r.free_mean_rmse).collect::<Vec<_>>()),
         ratio_to_free: Summary::of(&pick(&|r| r.ratio_to_free)),
         mean_spread: Summary::of(&pick(&|r| r.mean_spread)),
+        mean_modal_rmse: Summary::of(&pick(&|r| r.mean_modal_rmse)),
         truncation_rmse,
         runs,
     }
 }
 
-/// Mean and sample standard deviation of finite values (no sorting: the curves need no
-/// percentiles).
-fn mean_std(v: &[f64]) -> (f64, f64) {
-    let n = v.len();
-    if n == 0 {
-        return (f64::NAN, f64::NAN);
+/// Mean and sample standard deviation (n − 1) at each step over the finite values of the
+/// runs' curves.
+struct StepMoments {
+    n: Vec<usize>,
+    mean: Vec<f64>,
+    std: Vec<f64>,
+}
+
+impl StepMoments {
+    fn of(runs: &[RunOutcome], curve: impl Fn(&RunOutcome) -> &Vec<f64>, n_steps: usize) -> Self {
+        let mut n = vec![0usize; n_steps];
+        let mut sum = vec![0.0; n_steps];
+        for r in runs {
+            for ((v, s), k) in curve(r).iter().zip(&mut sum).zip(&mut n) {
+                if v.is_finite() {
+                    *s += v;
+                    *k += 1;
+                }
+            }
+        }
+        let mean: Vec<f64> = sum
+            .iter()
+            .zip(&n)
+            .map(|(&s, &k)| if k == 0 { f64::NAN } else { s / k as f64 })
+            .collect();
+        let mut sq = vec![0.0; n_steps];
+        for r in runs {
+            for ((v, s), m) in curve(r).iter().zip(&mut sq).zip(&mean) {
+                if v.is_finite() {
+                    *s += (v - m) * (v - m);
+                }
+            }
+        }
+        let std = sq
+            .iter()
+            .zip(&n)
+            .map(|(&s, &k)| match k {
+                0 => f64::NAN,
+                1 => 0.0,
+                _ => (s / (k - 1) as f64).sqrt(),
+            })
+            .collect();
+        Self { n, mean, std }
     }
-    let mean = v.iter().sum::<f64>() / n as f64;
-    let std = if n > 1 {
-        (v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1) as f64).sqrt()
-    } else {
-        0.0
-    };
-    (mean, std)
 }
 
 #[cfg(test)]
@@ -732,7 +784,8 @@ mod tests {
             let prep = prepare(case.clone(), "x", &s.model).unwrap();
             let (shared, _) = shared_for(&prep, &s.run).unwrap();
             let span = prep.test_span();
-            let block = gain_block(&shared, &span, 0..5);
+            let fused = fused_ops(&shared, &span);
+            let block = gain_block(&shared, &span, fused.as_ref(), 0..5);
             for (run_idx, b) in block.iter().enumerate() {
                 let single = one_run(&shared, &span, run_idx);
                 for (x, y) in b.rmse.iter().zip(&single.rmse) {

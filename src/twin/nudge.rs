@@ -4,8 +4,9 @@
 //! pulled towards the readings by `a ← a + γ α Hᵀ R⁻¹ (z − offset − H a)`, a gradient step on the
 //! reading misfit. `α = 1 / λ_max(Hᵀ R⁻¹ H)` makes γ ∈ (0, 1] a fraction of the largest stable
 //! step, so poorly observed modes get small corrections instead of amplified noise. The strength
-//! γ is set, or tuned by Brent's method (argmin `BrentOpt`; Brent 1973) on the training span,
-//! minimising the time-mean field RMSE of nudged runs there.
+//! γ is set, or tuned on the training span: the best of a log-spaced grid, refined by Brent's
+//! method (argmin `BrentOpt`; Brent 1973) in log γ, minimising the time-mean field RMSE of
+//! nudged runs there.
 
 use argmin::core::{CostFunction, Error as ArgminError, Executor, State};
 use argmin::solver::brent::BrentOpt;
@@ -14,7 +15,20 @@ use faer::{Mat, MatRef, Side};
 use super::TwinError;
 
 /// Lower end of the tuned strength: below this nudging is indistinguishable from the free run.
-pub const MIN_TUNED_STRENGTH: f64 = 0.01;
+pub const MIN_TUNED_STRENGTH: f64 = 0.001;
+
+/// The strengths tried before refinement: 10 log-spaced values from [`MIN_TUNED_STRENGTH`]
+/// to 1 (1, 2 and 5 per decade), the fixed strengths a user would try by hand.
+pub fn strength_grid() -> Vec<f64> {
+    let mut out = Vec::new();
+    for decade in [1e-3, 1e-2, 1e-1] {
+        for m in [1.0, 2.0, 5.0] {
+            out.push(m * decade);
+        }
+    }
+    out.push(1.0);
+    out
+}
 
 /// Nudging gain `γ α Hᵀ R⁻¹` for the rows `rows`, `α = 1/λ_max(Hᵀ R⁻¹ H)`; `None` when the
 /// rows read nothing of the modes (λ_max = 0) or the eigenvalues fail.
@@ -60,16 +74,23 @@ impl CostFunction for StrengthCost<'_> {
     }
 }
 
-/// Strength in `[MIN_TUNED_STRENGTH, 1]` minimising `objective` (Brent, at most 40 iterations,
-/// tolerance 1e-3 absolute on γ).
-pub fn tune_strength(objective: &(dyn Fn(f64) -> f64 + Sync)) -> Result<f64, TwinError> {
-    let solver = BrentOpt::new(MIN_TUNED_STRENGTH, 1.0).set_tolerance(1e-3, 1e-3);
+/// Minimiser of `objective` in `[lo, hi]` (Brent, at most 40 iterations, tolerance 1e-3
+/// absolute on the argument).
+pub fn tune_strength(
+    objective: &(dyn Fn(f64) -> f64 + Sync),
+    lo: f64,
+    hi: f64,
+) -> Result<f64, TwinError> {
+    if lo.is_nan() || hi.is_nan() || lo >= hi {
+        return Ok(lo);
+    }
+    let solver = BrentOpt::new(lo, hi).set_tolerance(1e-3, 1e-3);
     let result = Executor::new(StrengthCost { objective }, solver)
         .configure(|state| state.max_iters(40))
         .run()
         .map_err(|e| TwinError::Numerical(format!("tuning the nudging strength: {e}")))?;
-    let best = *result.state().get_best_param().unwrap_or(&1.0);
-    Ok(best.clamp(MIN_TUNED_STRENGTH, 1.0))
+    let best = *result.state().get_best_param().unwrap_or(&lo);
+    Ok(best.clamp(lo, hi))
 }
 
 #[cfg(test)]
@@ -95,7 +116,7 @@ mod tests {
     #[test]
     fn brent_finds_the_minimum_of_a_parabola() {
         let f = |g: f64| (g - 0.37) * (g - 0.37) + 1.0;
-        let best = tune_strength(&f).unwrap();
+        let best = tune_strength(&f, MIN_TUNED_STRENGTH, 1.0).unwrap();
         assert!((best - 0.37).abs() < 2e-3, "{best}");
     }
 }

@@ -9,7 +9,7 @@ use crate::basis::{Basis, Projection};
 use crate::io::{LayoutRow, Site, SnapshotSource};
 use crate::sensors::Block;
 
-use super::montecarlo::{prepare, run_monte_carlo, ScoreResult, TwinCase};
+use super::montecarlo::{layout_id, prepare, run_monte_carlo, ScoreResult, TwinCase};
 use super::schedule::SensorRows;
 use super::{TwinError, TwinSettings};
 
@@ -86,6 +86,16 @@ pub fn layout_blocks(
         });
     }
     Ok(out)
+}
+
+/// The seed id of a layout's blocks on `site` ([`layout_id`] of their candidate and kind names).
+pub fn layout_id_of(site: &Site, blocks: &[Block]) -> String {
+    layout_id(blocks.iter().map(|b| {
+        (
+            site.candidates[b.candidate_idx].id.as_str(),
+            site.kinds[b.kind_idx].name.as_str(),
+        )
+    }))
 }
 
 fn list<'a>(names: impl Iterator<Item = &'a str>) -> String {
