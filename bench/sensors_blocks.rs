@@ -93,6 +93,7 @@ fn main() {
         zones: Vec::new(),
         obstacles: Vec::new(),
         existing: Vec::new(),
+        currency: String::new(),
         geo_origin: None,
         synth: None,
         warnings: Vec::new(),

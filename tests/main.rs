@@ -9,6 +9,7 @@ mod common;
 mod hardening;
 mod plan;
 mod render;
+mod rescore;
 mod select;
 mod sensors;
 mod site_load;

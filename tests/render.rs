@@ -136,6 +136,7 @@ fn quay_site() -> Site {
             candidate_idx: 0,
             kind_idx: 0,
         }],
+        currency: "EUR".to_string(),
         geo_origin: Some(GeoOrigin {
             lat_deg: 53.54,
             lon_deg: 9.97,
@@ -908,5 +909,44 @@ fn demo_site_geometry_renders_on_the_map() {
         {
             assert!(svg.contains(&format!("{} sensor", kind.name)));
         }
+    }
+}
+
+#[test]
+fn counting_axes_have_whole_number_ticks() {
+    // A loss chart: 0..3 sensors lost. Errors in the tens keep y labels whole too, so any
+    // fractional label would be an x tick.
+    let mut chart = CurveChart::new("Loss", "sensors lost (count)", "RMSE (m/s)");
+    chart.series.push(Series::with_sd(
+        "recommended",
+        vec![0.0, 1.0, 2.0, 3.0],
+        vec![10.0, 20.0, 30.0, 40.0],
+        &[1.0; 4],
+    ));
+    let labels = |chart: &CurveChart| -> Vec<String> {
+        let svg = render::to_svg(chart, "loss").unwrap();
+        svg.split("<text")
+            .skip(1)
+            .filter_map(|t| t.split_once('>').map(|(_, rest)| rest))
+            .filter_map(|rest| {
+                rest.split_once("</text>")
+                    .map(|(v, _)| v.trim().to_string())
+            })
+            .collect()
+    };
+    let fractional = |l: &Vec<String>| {
+        l.iter()
+            .any(|v| v.parse::<f64>().is_ok_and(|x| x.fract() != 0.0))
+    };
+    // Without the flag plotters labels half steps on so short a range: the check can fail.
+    assert!(fractional(&labels(&chart)), "{:?}", labels(&chart));
+    chart.integer_x = true;
+    let whole = labels(&chart);
+    assert!(!fractional(&whole), "{whole:?}");
+    for tick in ["0", "1", "2", "3"] {
+        assert!(
+            whole.iter().any(|l| l == tick),
+            "tick {tick} missing: {whole:?}"
+        );
     }
 }

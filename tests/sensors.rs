@@ -56,6 +56,7 @@ fn grid_site(plane: Plane, nx: usize, ny: usize, spacing: f64, channels: Vec<Cha
         zones: Vec::new(),
         obstacles: Vec::new(),
         existing: Vec::new(),
+        currency: String::new(),
         geo_origin: None,
         synth: None,
         warnings: Vec::new(),

@@ -155,7 +155,6 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
     let rows: Vec<Vec<String>> = all.iter().map(CellOutcome::to_row).collect();
     write_csv_table(&out.join("studies.csv"), &TIDY_HEADER, &rows)?;
 
-    let currency = site_currency(&site);
     let facts = PlanFacts {
         subtitle: format!(
             "crowsnest {} · seed {} · {} Monte Carlo runs per layout",
@@ -163,12 +162,12 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
             args.seed,
             n_runs
         ),
-        assumptions: assumptions(&site, &pipeline, &settings, max_count),
+        assumptions: assumptions(&site, &pipeline, &settings, max_count, &outcome),
         layout_csv,
         layout_geojson,
         warnings: warnings.clone(),
     };
-    let doc = plan_document(&site, &currency, &pipeline.basis, &outcome, facts)?;
+    let doc = plan_document(&site, &pipeline.basis, &outcome, facts)?;
     let figures_dir = out.join("figures");
     for f in &doc.figures {
         write_bytes_atomic(
@@ -190,10 +189,6 @@ pub fn run(args: PlanArgs) -> anyhow::Result<()> {
         eprintln!("warning: {w}");
     }
     Ok(())
-}
-
-fn site_currency(_site: &Site) -> String {
-    String::new()
 }
 
 /// Hash of everything that changes a plan's cells, so a journal is reused only for the same
@@ -241,7 +236,34 @@ fn assumptions(
     pipeline: &SitePipeline,
     settings: &TwinSettings,
     max_count: usize,
+    outcome: &crate::sweep::PlanOutcome,
 ) -> Vec<(String, String)> {
+    let n_kept = outcome
+        .ranking
+        .layout
+        .entries
+        .iter()
+        .filter(|e| e.kept)
+        .count();
+    let largest = outcome
+        .design
+        .iter()
+        .filter(|o| o.time_mean_rmse.mean.is_finite())
+        .max_by(|a, b| {
+            a.n_sensors
+                .cmp(&b.n_sensors)
+                .then(b.cost.total_cmp(&a.cost))
+        });
+    let mut studied = format!("count study: 1 to {max_count} new sensors");
+    if let Some(big) = largest {
+        studied.push_str(&format!(
+            "; largest layout scored: {} new sensors ({} {} study, {})",
+            big.n_sensors.saturating_sub(n_kept),
+            crate::render::plan_report::method_label(&big.cell.method),
+            big.cell.study,
+            crate::render::plan_report::money(big.cost, &site.currency)
+        ));
+    }
     let report = &pipeline.model.report;
     let damping = match report.damping_scale {
         Some(s) => format!(
@@ -286,17 +308,17 @@ fn assumptions(
             "selection criterion".to_string(),
             "D-optimal (log det of the posterior information, POD-energy prior)".to_string(),
         ),
-        (
-            "largest layout studied".to_string(),
-            format!("{max_count} new sensors"),
-        ),
+        ("layouts studied".to_string(), studied),
     ];
     for kind in &site.kinds {
         out.push((
             format!("kind {}", kind.name),
             format!(
-                "noise sd {}, reading every {} s, cost {}",
-                kind.noise_sd, kind.interval, kind.cost
+                "noise sd {} {}, reading every {} s, cost {} (plus each mount's own cost)",
+                kind.noise_sd,
+                kind_unit(site, kind),
+                kind.interval,
+                crate::render::plan_report::money(kind.cost, &site.currency)
             ),
         ));
     }
@@ -314,15 +336,20 @@ fn print_summary(
         "Recommended layout ({} sensors):",
         outcome.ranking.layout.entries.len()
     );
+    let cost_head = if site.currency.is_empty() {
+        "cum. cost".to_string()
+    } else {
+        format!("cum. cost ({})", site.currency)
+    };
     println!(
-        "{:>4}  {:<18} {:<14} {:>12}",
-        "rank", "candidate", "kind", "cum. cost"
+        "{:>4}  {:<18} {:<14} {:>16}",
+        "rank", "candidate", "kind", cost_head
     );
     for entry in &outcome.ranking.layout.entries {
         let candidate = &site.candidates[entry.candidate_idx].id;
         let kind = &site.kinds[entry.kind_idx].name;
         println!(
-            "{:>4}  {:<18} {:<14} {:>12.0}{}",
+            "{:>4}  {:<18} {:<14} {:>16.0}{}",
             entry.rank,
             candidate,
             kind,
@@ -340,4 +367,22 @@ fn print_summary(
         report.display(),
         out.display()
     );
+}
+
+/// Unit of a kind's noise: the unit of the first channel it reads (beams read velocity).
+fn kind_unit(site: &Site, kind: &crate::io::SensorKind) -> String {
+    let first = match &kind.measurement {
+        crate::io::Measurement::Beam(_) => site
+            .channels
+            .iter()
+            .find(|c| c.role != crate::io::ChannelRole::Scalar),
+        crate::io::Measurement::Point { channel_idx } => {
+            channel_idx.first().and_then(|&i| site.channels.get(i))
+        }
+        crate::io::Measurement::Scalar { channel_idx } => site.channels.get(*channel_idx),
+    };
+    first
+        .or(site.channels.first())
+        .map(|c| c.unit.clone())
+        .unwrap_or_default()
 }

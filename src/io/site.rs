@@ -230,6 +230,9 @@ pub struct SynthSettings {
 #[derive(Debug, Clone)]
 pub struct Site {
     pub name: String,
+    /// Label of the currency every cost is in (`currency` in site.toml, e.g. "EUR"); empty
+    /// when the site does not say.
+    pub currency: String,
     /// Directory holding `site.toml`; relative paths in the file are resolved against it.
     pub root: PathBuf,
     pub plane: Plane,

@@ -94,7 +94,11 @@ fn load(path: &Path, generated: Generated) -> Result<Site, IoError> {
             ))
         }
     };
-    top.opt_str("currency", "a currency label such as \"EUR\"")?;
+    let currency = top
+        .opt_str("currency", "a currency label such as \"EUR\"")?
+        .unwrap_or_default()
+        .trim()
+        .to_string();
 
     let obstacles: Vec<Obstacle> = read_polygons(file, &root, &top, "obstacles", &mut warnings)?
         .into_iter()
@@ -166,6 +170,7 @@ fn load(path: &Path, generated: Generated) -> Result<Site, IoError> {
     };
     Ok(Site {
         name,
+        currency,
         root: absolute(&root)?,
         plane,
         domain,

@@ -85,6 +85,8 @@ pub struct CurveChart {
     pub ref_lines: Vec<RefLine>,
     pub log_x: bool,
     pub log_y: bool,
+    /// The x axis counts things (sensors): ticks on whole numbers only.
+    pub integer_x: bool,
     /// Start the y axis at zero (for errors) instead of at the data minimum.
     pub y_from_zero: bool,
     pub width: u32,
@@ -106,6 +108,7 @@ impl CurveChart {
             ref_lines: Vec::new(),
             log_x: false,
             log_y: false,
+            integer_x: false,
             y_from_zero: true,
             width: 880,
             plot_height: 380,
@@ -238,6 +241,26 @@ pub fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
     }
 }
 
+/// Whole-number ticks over `[lo, hi]`, at most about ten (every 2nd, 5th, ... whole number
+/// on long ranges); empty when the range holds none.
+pub fn integer_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    if !(lo.is_finite() && hi.is_finite()) || hi < lo {
+        return Vec::new();
+    }
+    let (first, last) = (lo.ceil() as i64, hi.floor() as i64);
+    if last < first {
+        return Vec::new();
+    }
+    let span = (last - first) as f64;
+    let step = figure::nice_ticks(0.0, span.max(1.0), 10)
+        .get(1)
+        .map_or(1, |s| (s.round() as i64).max(1));
+    (first..=last)
+        .filter(|v| (v - first) % step == 0)
+        .map(|v| v as f64)
+        .collect()
+}
+
 const TITLE_H: u32 = 40;
 const MARGIN: u32 = 14;
 const Y_LABEL_W: u32 = 78;
@@ -279,6 +302,21 @@ impl Figure for CurveChart {
         } else {
             log_ticks(x0, x1)
         };
+        // Counting axes: ask for no more labels than whole numbers in range, so the 1-2-5 steps
+        // plotters picks are whole numbers, and print only whole numbers.
+        let n_x_labels = if self.integer_x && !self.log_x {
+            integer_ticks(x0, x1).len().clamp(1, 10)
+        } else {
+            8
+        };
+        let integer_x = self.integer_x;
+        let x_format = move |v: &f64| {
+            if integer_x && (v - v.round()).abs() > 1e-9 {
+                String::new()
+            } else {
+                figure::format_axis_value(v)
+            }
+        };
         macro_rules! with_chart {
             ($xr:expr, $yr:expr) => {{
                 let mut chart = ChartBuilder::on(&chart_area)
@@ -295,9 +333,9 @@ impl Figure for CurveChart {
                     .axis_desc_style(figure::text(LABEL_PX, INK))
                     .label_style(figure::text(TICK_PX, INK_SOFT))
                     .axis_style(INK.stroke_width(1))
-                    .x_labels(8)
+                    .x_labels(n_x_labels)
                     .y_labels(7)
-                    .x_label_formatter(&figure::format_axis_value)
+                    .x_label_formatter(&x_format)
                     .y_label_formatter(&figure::format_axis_value)
                     .draw()?;
                 self.draw_data(root, &mut chart)?;
@@ -405,6 +443,19 @@ impl CurveChart {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn integer_ticks_are_whole_numbers() {
+        // The loss chart's x range, padded: 0..3 sensors lost.
+        assert_eq!(integer_ticks(-0.06, 3.06), vec![0.0, 1.0, 2.0, 3.0]);
+        assert_eq!(integer_ticks(0.8, 10.2).len(), 10);
+        let long = integer_ticks(0.0, 40.0);
+        assert!(
+            long.len() <= 11 && long.iter().all(|v| v.fract() == 0.0),
+            "{long:?}"
+        );
+        assert!(integer_ticks(0.2, 0.8).is_empty());
+    }
 
     #[test]
     fn log_ticks_follow_one_two_five() {

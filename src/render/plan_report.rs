@@ -166,6 +166,7 @@ fn study_series(
 pub fn method_label(method: &str) -> String {
     match method {
         "greedy" => "greedy".into(),
+        "recommended" => "recommended layout".into(),
         "exchange" => "greedy + exchange".into(),
         "qr" => "pivoted QR".into(),
         "grid" => "even grid (by hand)".into(),
@@ -186,7 +187,8 @@ fn fmt(v: f64) -> String {
     }
 }
 
-fn money(v: f64, currency: &str) -> String {
+/// An amount of money, digits grouped in threes, with the currency label when there is one.
+pub fn money(v: f64, currency: &str) -> String {
     let whole = format!("{:.0}", v.abs());
     let mut grouped = String::new();
     for (i, ch) in whole.chars().enumerate() {
@@ -206,11 +208,11 @@ fn money(v: f64, currency: &str) -> String {
 /// Builds every figure and the report of a plan.
 pub fn plan_document(
     site: &Site,
-    currency: &str,
     basis: &Basis,
     outcome: &PlanOutcome,
     facts: PlanFacts,
 ) -> Result<PlanDocument, RenderError> {
+    let currency = site.currency.as_str();
     let unit = site
         .channels
         .first()
@@ -268,10 +270,11 @@ pub fn plan_document(
 
     let mut count_chart = CurveChart::new(
         "Error against number of new sensors",
-        "new sensors",
+        "new sensors (count, existing sensors kept besides)",
         format!("time-mean field RMSE ({unit})"),
     );
     count_chart.series = study_series(&outcome.design, StudyKind::Count, |o| o.cell.setting);
+    count_chart.integer_x = true;
     if let Goal::TargetRmse(t) = rec.goal {
         count_chart.ref_lines.push(RefLine {
             value: t,
@@ -282,11 +285,7 @@ pub fn plan_document(
 
     let mut pareto = ParetoChart::new(
         "Cost against error",
-        if currency.is_empty() {
-            "cost".to_string()
-        } else {
-            format!("cost ({currency})")
-        },
+        cost_label(currency),
         format!("time-mean field RMSE ({unit})"),
     );
     let mut methods: Vec<&str> = Vec::new();
@@ -339,41 +338,65 @@ pub fn plan_document(
             StudyKind::Background,
             "background",
             "Error against background error",
-            "background error (field RMSE of the initial state)",
+            "",
         ),
         (
             StudyKind::Loss,
             "loss",
             "Error after losing sensors (worst first)",
-            "sensors lost",
+            "sensors lost, worst first (count)",
         ),
     ];
+    let n_kept = layout.entries.iter().filter(|e| e.kept).count();
+    let n_new = layout.entries.len() - n_kept;
+    let kept_words = if n_kept > 0 {
+        format!(
+            " plus the {n_kept} existing sensor{}",
+            if n_kept == 1 { "" } else { "s" }
+        )
+    } else {
+        String::new()
+    };
+    let layouts = format!(
+        "the recommended layout ({n_new} new sensor{}{kept_words}, {}) and an evenly spaced grid of {n_new} new sensor{}{kept_words}",
+        if n_new == 1 { "" } else { "s" },
+        money(chosen.cost, currency),
+        if n_new == 1 { "" } else { "s" },
+    );
     let mut condition_figures = Vec::new();
     for (study, name, title, x_label) in conditions {
         let series = study_series(&outcome.conditions, study, |o| o.cell.setting);
         if series.is_empty() {
             continue;
         }
+        let x_label = if study == StudyKind::Background {
+            format!("background error, field RMSE of the initial state ({unit})")
+        } else {
+            x_label.to_string()
+        };
         let mut chart = CurveChart::new(title, x_label, format!("time-mean field RMSE ({unit})"));
         chart.series = series;
         if matches!(study, StudyKind::Noise | StudyKind::Interval) {
             chart.log_x = true;
         }
+        if study == StudyKind::Loss {
+            chart.integer_x = true;
+        }
         let f = figure(
             &chart,
             name,
-            format!(
-                "{title}, for a layout of {} new sensors; mean ± 1 std over runs.",
-                layout.entries.iter().filter(|e| !e.kept).count()
-            ),
+            format!("{title}: {layouts}; mean ± 1 std over runs."),
         )?;
         condition_figures.push(f);
     }
 
-    let justification = justify(site, currency, &unit, outcome);
+    let justification = justify(currency, &unit, outcome);
 
     let layout_table = Table {
-        caption: "Recommended layout, in the order the planner chose it".into(),
+        caption: format!(
+            "Recommended layout, in the order the planner chose it (gain and criterion: log det of the posterior information, nats; costs in {})",
+            currency_words(currency)
+        ),
         header: [
             "rank",
             "candidate",
@@ -382,7 +405,7 @@ pub fn plan_document(
             "y (m)",
             "gain",
             "criterion",
-            "cumulative cost",
+            format!("cumulative cost ({})", cost_unit(currency)).as_str(),
             "existing",
         ]
         .iter()
@@ -401,7 +424,7 @@ pub fn plan_document(
                     fmt(c.position[1]),
                     fmt(e.marginal_gain),
                     fmt(e.cumulative_criterion),
-                    money(e.cumulative_cost, currency),
+                    money(e.cumulative_cost, ""),
                     if e.kept { "yes".into() } else { String::new() },
                 ]
             })
@@ -411,16 +434,20 @@ pub fn plan_document(
 
     let mut studies = Vec::new();
     let count_table = Table {
-        caption: "Count and budget studies (time-mean field RMSE over the Monte Carlo runs)".into(),
+        caption: format!(
+            "Count and budget studies: setting is the number of new sensors or the budget ({}); sensors include the existing ones; time-mean field RMSE in {unit} over the Monte Carlo runs; costs in {}",
+            cost_unit(currency),
+            currency_words(currency)
+        ),
         header: [
             "study",
             "method",
             "setting",
             "sensors",
-            "cost",
-            "mean",
-            "std",
-            "p95",
+            cost_label(currency).as_str(),
+            format!("mean ({unit})").as_str(),
+            format!("std ({unit})").as_str(),
+            format!("p95 ({unit})").as_str(),
             "ratio to free run",
         ]
         .iter()
@@ -433,9 +460,12 @@ pub fn plan_document(
                 vec![
                     o.cell.study.to_string(),
                     method_label(&o.cell.method),
-                    fmt(o.cell.setting),
+                    match o.cell.study {
+                        StudyKind::Budget => money(o.cell.setting, ""),
+                        _ => format!("{:.0} new", o.cell.setting),
+                    },
                     o.n_sensors.to_string(),
-                    money(o.cost, currency),
+                    money(o.cost, ""),
                     fmt(o.time_mean_rmse.mean),
                     fmt(o.time_mean_rmse.std),
                     fmt(o.time_mean_rmse.p95),
@@ -461,7 +491,9 @@ pub fn plan_document(
     if !condition_figures.is_empty() {
         studies.push(Study {
             title: "How robust".into(),
-            paragraphs: vec!["The recommended number of sensors, chosen by greedy selection and laid out as an even grid, under changed conditions: noisier sensors, slower sampling, a worse initial state, and the loss of the sensors whose absence hurts most.".into()],
+            paragraphs: vec![format!(
+                "Two layouts under changed conditions: {layouts}. Each is scored with noisier (or quieter) sensors, slower sampling, a worse (or better) initial state, and after losing the sensors whose absence lowers the information most, found one at a time. At ×1 and with no sensor lost the recommended layout scores exactly as in the count and budget studies (each layout keeps one seed stream)."
+            )],
             figures: condition_figures.iter().map(report_figure).collect(),
             tables: Vec::new(),
         });
@@ -470,15 +502,22 @@ pub fn plan_document(
     let sensor_loss = (!outcome.single_losses.is_empty()).then(|| {
         let base = outcome.recommended_score.mean_rmse.mean;
         Study {
-            title: "What one lost sensor costs".into(),
+            // The section heading already says it.
+            title: String::new(),
             paragraphs: vec![format!(
-                "Each sensor of the recommended layout removed on its own, worst first. With all sensors the time-mean field RMSE is {} {unit}.",
+                "Each sensor of the recommended layout removed on its own, worst first. With all sensors the time-mean field RMSE is {} {unit}; the increase is relative to that.",
                 fmt(base)
             )],
             figures: Vec::new(),
             tables: vec![Table {
                 caption: "Time-mean field RMSE with one sensor lost".into(),
-                header: ["lost sensor", "kind", "mean", "std", "increase"]
+                header: [
+                    "lost sensor",
+                    "kind",
+                    format!("mean ({unit})").as_str(),
+                    format!("std ({unit})").as_str(),
+                    "increase",
+                ]
                     .iter()
                     .map(|s| s.to_string())
                     .collect(),
@@ -594,7 +633,7 @@ fn domain_text(site: &Site) -> String {
 }
 
 /// The justification, in plain sentences.
-fn justify(site: &Site, currency: &str, unit: &str, outcome: &PlanOutcome) -> Vec<String> {
+fn justify(currency: &str, unit: &str, outcome: &PlanOutcome) -> Vec<String> {
     let rec = &outcome.recommendation;
     let chosen = &rec.chosen;
     let layout = &outcome.ranking.layout;
@@ -641,20 +680,7 @@ fn justify(site: &Site, currency: &str, unit: &str, outcome: &PlanOutcome) -> Ve
             100.0 * (1.0 - chosen.ratio_to_free())
         ));
     }
-    match (&rec.grid_equivalent, rec.saving()) {
-        (Some(grid), Some(saving)) if saving > 0.0 => out.push(format!(
-            "An evenly spaced grid laid out by hand needs {} sensors ({}) to reach the same error; the recommended layout saves {}.",
-            grid.n_sensors, money(grid.cost, currency), money(saving, currency)
-        )),
-        (Some(grid), _) => out.push(format!(
-            "An evenly spaced grid of {} sensors ({}) reaches the same error here, so the saving on this site is small.",
-            grid.n_sensors, money(grid.cost, currency)
-        )),
-        (None, _) => out.push(format!(
-            "No evenly spaced grid of up to {} sensors reaches the same error.",
-            rec.max_grid_studied
-        )),
-    }
+    out.push(grid_sentence(rec, n_existing, currency));
     let gap = outcome.ranking.gap;
     if gap.is_finite() {
         out.push(format!(
@@ -662,6 +688,119 @@ fn justify(site: &Site, currency: &str, unit: &str, outcome: &PlanOutcome) -> Ve
             fmt(gap), fmt(gap)
         ));
     }
-    let _ = site;
     out
+}
+
+/// How the recommended layout compares with an evenly spaced grid laid out by hand, in one
+/// sentence; says plainly when the grid is as cheap or cheaper.
+fn grid_sentence(rec: &crate::sweep::Recommendation, n_existing: usize, currency: &str) -> String {
+    let grid_new = |n_sensors: usize| {
+        let n = n_sensors.saturating_sub(n_existing);
+        format!("{n} new sensor{}", if n == 1 { "" } else { "s" })
+    };
+    match (&rec.grid_equivalent, rec.saving()) {
+        (Some(grid), Some(saving)) if saving.abs() < 0.5 => format!(
+            "An evenly spaced grid of {} reaches the same error for the same money ({}): on this site the optimised layout buys no saving over a grid laid out by hand.",
+            grid_new(grid.n_sensors), money(grid.cost, currency)
+        ),
+        (Some(grid), Some(saving)) if saving > 0.0 => format!(
+            "An evenly spaced grid laid out by hand needs {} ({}) to reach the same error; the recommended layout saves {}.",
+            grid_new(grid.n_sensors), money(grid.cost, currency), money(saving, currency)
+        ),
+        (Some(grid), Some(saving)) => format!(
+            "On this site an evenly spaced grid is cheaper: a grid of {} laid out by hand gets the same error for {}, {} less than the recommended layout. Consider the grid, or a tighter target where the optimised layouts pull ahead (see the count study).",
+            grid_new(grid.n_sensors), money(grid.cost, currency), money(-saving, currency)
+        ),
+        _ => format!(
+            "No evenly spaced grid of up to {} reaches the same error.",
+            grid_new(rec.max_grid_studied)
+        ),
+    }
+}
+
+/// Words for the currency in captions.
+fn currency_words(currency: &str) -> String {
+    if currency.is_empty() {
+        "the site's currency units (site.toml gives no `currency`)".into()
+    } else {
+        currency.into()
+    }
+}
+
+/// Unit of costs: the site's currency, or "currency units" when it gives none.
+pub fn cost_unit(currency: &str) -> &str {
+    if currency.is_empty() {
+        "currency units"
+    } else {
+        currency
+    }
+}
+
+/// Label of a cost axis, with its unit.
+pub fn cost_label(currency: &str) -> String {
+    format!("cost ({})", cost_unit(currency))
+}
+
+#[cfg(test)]
+#[allow(clippy::unwrap_used)]
+mod tests {
+    use super::*;
+    use crate::sweep::{recommend, Cell, RmseStats};
+
+    fn cell(idx: usize, method: &str, n: usize, cost: f64, mean: f64) -> CellOutcome {
+        CellOutcome {
+            cell_idx: idx,
+            cell: Cell {
+                study: StudyKind::Count,
+                method: method.into(),
+                setting: n as f64,
+            },
+            n_sensors: n,
+            cost,
+            criterion: 0.0,
+            time_mean_rmse: RmseStats {
+                mean,
+                std: 0.01,
+                ..RmseStats::default()
+            },
+            final_rmse: RmseStats::default(),
+            free_time_mean_rmse: 2.0,
+            n_runs: 8,
+            n_diverged: 0,
+            sensors: String::new(),
+        }
+    }
+
+    #[test]
+    fn a_cheaper_grid_is_called_cheaper_not_a_small_saving() {
+        // The grid reaches the greedy layout's error with more sensors but cheaper kinds.
+        let cells = vec![
+            cell(0, "greedy", 2, 20_000.0, 0.5),
+            cell(1, "grid", 2, 5_000.0, 0.9),
+            cell(2, "grid", 3, 7_500.0, 0.45),
+        ];
+        let rec = recommend(&cells, Goal::TargetRmse(0.6)).unwrap();
+        let text = grid_sentence(&rec, 0, "EUR");
+        assert!(text.contains("grid is cheaper"), "{text}");
+        assert!(text.contains("7\u{202f}500 EUR"), "{text}");
+        assert!(text.contains("12\u{202f}500 EUR less"), "{text}");
+        assert!(!text.contains("small"), "{text}");
+
+        let cells = vec![
+            cell(0, "greedy", 2, 5_000.0, 0.5),
+            cell(1, "grid", 4, 9_000.0, 0.45),
+        ];
+        let rec = recommend(&cells, Goal::TargetRmse(0.6)).unwrap();
+        let text = grid_sentence(&rec, 1, "");
+        assert!(text.contains("needs 3 new sensors ("), "{text}");
+        assert!(text.contains("saves 4\u{202f}000."), "{text}");
+    }
+
+    #[test]
+    fn money_groups_digits_and_names_the_currency() {
+        assert_eq!(money(58_300.0, "EUR"), "58\u{202f}300 EUR");
+        assert_eq!(money(-1_234_567.0, ""), "−1\u{202f}234\u{202f}567");
+        assert_eq!(cost_label("EUR"), "cost (EUR)");
+        assert_eq!(cost_label(""), "cost (currency units)");
+    }
 }

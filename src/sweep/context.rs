@@ -4,9 +4,15 @@
 //! (fitted once and shared by every layout) — and the evaluation of one cell with it.
 //!
 //! A cell's layout comes from `select::rank` (cached per method and limit, since several
-//! studies reuse the same layout); its score from `twin::run_monte_carlo` on the rows of that
-//! layout. The setting id of every Monte Carlo run is a hash of the cell key, so a cell's
-//! numbers do not depend on which other cells ran before it.
+//! studies reuse the same layout), or is the fixed recommended layout for the method name
+//! [`RECOMMENDED`]; its score from `twin::run_monte_carlo` on the rows of that layout.
+//!
+//! One seed stream per layout and condition: the Monte Carlo runs are seeded from the master
+//! seed, the layout's sensors (its id is the `;`-joined `candidate:kind` list) and a condition
+//! id that is 0 under the base conditions and a hash of what changed otherwise. So the same
+//! layout under the same conditions scores exactly the same wherever it appears (a count cell,
+//! a budget cell, the noise study at ×1, the report's detail scores), and a cell's numbers do
+//! not depend on which other cells ran before it.
 
 use std::cell::RefCell;
 use std::collections::HashMap;
@@ -39,8 +45,12 @@ pub struct StudyContext<'a> {
     pub model: &'a ReducedModel,
     /// Base twin settings; studies vary one field at a time.
     pub settings: TwinSettings,
-    /// Layout size (new sensors) used by the noise, interval, background and loss studies.
+    /// Layout size (new sensors) of the layouts the noise, interval, background and loss
+    /// studies rank by method (the grid baseline in a plan; every method in `sweep`).
     pub base_count: usize,
+    /// The layout cells with method [`RECOMMENDED`] score: the method and limit it was ranked
+    /// with. `plan` sets it once the recommendation is known.
+    pub recommended: Option<(Method, Limit)>,
     pub n_random_draws: usize,
     pub seed: u64,
     rankings: RefCell<HashMap<String, Ranking>>,
@@ -48,6 +58,30 @@ pub struct StudyContext<'a> {
 
 /// Method names accepted in cells, in display order.
 pub const METHOD_NAMES: [&str; 5] = ["greedy", "exchange", "qr", "grid", "random"];
+
+/// Method name of cells that score the recommended layout itself (see
+/// [`StudyContext::recommended`]).
+pub const RECOMMENDED: &str = "recommended";
+
+/// Seed-stream id of a scoring condition: 0 under the base conditions (`settings` equal to
+/// `base` in noise multiplier and background error, interval multiplier 1), otherwise a hash
+/// of the three values.
+pub fn condition_id(settings: &TwinSettings, interval_scale: f64, base: &TwinSettings) -> u64 {
+    let (noise, background) = (settings.run.noise_scale, settings.run.background_sd);
+    // Exact equality on purpose: only the very base settings share the base stream.
+    let same = |a: f64, b: f64| a.to_bits() == b.to_bits();
+    if same(noise, base.run.noise_scale)
+        && same(interval_scale, 1.0)
+        && same(background, base.run.background_sd)
+    {
+        0
+    } else {
+        fnv1a(
+            format!("noise={noise:?}|interval={interval_scale:?}|background={background:?}")
+                .as_bytes(),
+        )
+    }
+}
 
 pub fn parse_method(name: &str) -> Option<Method> {
     match name {
@@ -98,6 +132,7 @@ impl<'a> StudyContext<'a> {
             model,
             settings,
             base_count,
+            recommended: None,
             n_random_draws: 64,
             seed,
             rankings: RefCell::new(HashMap::new()),
@@ -177,6 +212,14 @@ impl<'a> StudyContext<'a> {
             .map_err(|e| SweepError::cell(layout_id, e))
     }
 
+    /// Monte Carlo score of a set of blocks under the base conditions, on the layout's own
+    /// seed stream (the same numbers its count or budget cell has).
+    pub fn score_base(&self, blocks: &[usize]) -> Result<ScoreResult, SweepError> {
+        let mut settings = self.settings.clone();
+        settings.run.setting_id = 0;
+        self.score_blocks(blocks, &self.describe(blocks), &settings, 1.0)
+    }
+
     /// Removes `n_lost` sensors from `blocks`, each time the one whose loss lowers the
     /// criterion most (worst case found greedily). Kept (existing) sensors can fail too.
     pub fn worst_losses(&self, blocks: &[usize], n_lost: usize) -> Vec<usize> {
@@ -204,7 +247,8 @@ impl<'a> StudyContext<'a> {
         lost
     }
 
-    fn describe(&self, blocks: &[usize]) -> String {
+    /// The layout id of a set of blocks: `candidate:kind` joined by `;`, in the given order.
+    pub fn describe(&self, blocks: &[usize]) -> String {
         blocks
             .iter()
             .map(|&b| {
@@ -218,30 +262,40 @@ impl<'a> StudyContext<'a> {
 
 impl CellEvaluator for StudyContext<'_> {
     fn evaluate(&self, cell: &Cell) -> Result<CellOutcome, SweepError> {
-        let method = parse_method(&cell.method).ok_or_else(|| {
-            SweepError::cell(
-                cell.key(),
-                format!(
-                    "unknown method `{}`, expected one of {}",
-                    cell.method,
-                    METHOD_NAMES.join(", ")
-                ),
-            )
-        })?;
-        let mut settings = self.settings.clone();
-        settings.run.setting_id = fnv1a(cell.key().as_bytes());
-        let mut interval_scale = 1.0;
-        let limit = match cell.study {
-            StudyKind::Count => Limit::Count(cell.setting.round() as usize),
-            StudyKind::Budget => Limit::Budget(cell.setting),
-            _ => Limit::Count(self.base_count),
+        let (method, limit) = if cell.method == RECOMMENDED {
+            self.recommended.ok_or_else(|| {
+                SweepError::cell(
+                    cell.key(),
+                    "the recommended layout is not known yet (only `plan` scores it)",
+                )
+            })?
+        } else {
+            let method = parse_method(&cell.method).ok_or_else(|| {
+                SweepError::cell(
+                    cell.key(),
+                    format!(
+                        "unknown method `{}`, expected one of {}",
+                        cell.method,
+                        METHOD_NAMES.join(", ")
+                    ),
+                )
+            })?;
+            let limit = match cell.study {
+                StudyKind::Count => Limit::Count(cell.setting.round() as usize),
+                StudyKind::Budget => Limit::Budget(cell.setting),
+                _ => Limit::Count(self.base_count),
+            };
+            (method, limit)
         };
+        let mut settings = self.settings.clone();
+        let mut interval_scale = 1.0;
         match cell.study {
             StudyKind::Noise => settings.run.noise_scale = cell.setting,
             StudyKind::Interval => interval_scale = cell.setting,
             StudyKind::Background => settings.run.background_sd = cell.setting,
             _ => {}
         }
+        settings.run.setting_id = condition_id(&settings, interval_scale, &self.settings);
         let ranking = self.ranking(method, limit)?;
         let mut blocks = self.layout_blocks(&ranking.layout);
         if cell.study == StudyKind::Loss {

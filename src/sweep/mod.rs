@@ -21,7 +21,7 @@ mod studies;
 mod tidy;
 
 pub use cells::{format_setting, Cell, Shard, StudyKind};
-pub use context::{parse_method, StudyContext, METHOD_NAMES};
+pub use context::{condition_id, parse_method, StudyContext, METHOD_NAMES, RECOMMENDED};
 pub use merge::merge_outcomes;
 pub use pipeline::{PipelineStage, SitePipeline};
 pub use plan::{chosen_limit, run_plan, PlanOptions, PlanOutcome, PlanStage, SingleLoss};
@@ -29,6 +29,6 @@ pub use recommend::{recommend, Goal, Recommendation, DESIGN_METHODS};
 pub use run::{run_cells, CellEvaluator, SweepError};
 pub use studies::{
     budget_settings, cells_of, condition_studies, count_settings, design_studies, StudySpec,
-    BACKGROUND_MULTIPLIERS, INTERVAL_MULTIPLIERS, NOISE_MULTIPLIERS,
+    BACKGROUND_MULTIPLIERS, CONDITION_METHODS, INTERVAL_MULTIPLIERS, NOISE_MULTIPLIERS,
 };
 pub use tidy::{CellOutcome, RmseStats, TIDY_HEADER};

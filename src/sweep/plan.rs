@@ -1,8 +1,13 @@
 //! The whole study behind `crowsnest plan`, as data: layouts by count and by budget for every
-//! method (phase one), the recommendation, then the recommended size under changed noise,
-//! sampling interval and background error and under worst-case sensor losses (phase two), and
-//! the detailed scores the report draws (error against time for the recommended layout, the
-//! grid baseline of the same size and the free run; the cost of each single lost sensor).
+//! method (phase one), the recommendation, then the recommended layout itself — next to the
+//! evenly spaced grid with as many new sensors — under changed noise, sampling interval and
+//! background error and under worst-case sensor losses (phase two), and the detailed scores
+//! the report draws (error against time for the recommended layout, that grid baseline and the
+//! free run; the cost of each single lost sensor of the recommended layout).
+//!
+//! With a budget goal B the budget study ranks at ¼, ½, ¾ and all of B, so "the lowest error
+//! within B" is chosen among layouts ranked for B itself; otherwise it spreads over the cost
+//! of the largest layout of the count study.
 //!
 //! Both phases go through [`run_cells`] with the same journal, so an interrupted plan resumes
 //! with identical results.
@@ -88,8 +93,12 @@ pub fn run_plan(
         .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
         .fold(f64::INFINITY, f64::min);
     let max_count = new_entries().count().max(1);
+    let top_budget = match options.goal {
+        Some(Goal::Budget(b)) => b,
+        _ => full_cost,
+    };
     let budgets = if cheapest.is_finite() {
-        budget_settings(full_cost, cheapest)
+        budget_settings(top_budget, cheapest)
     } else {
         Vec::new()
     };
@@ -116,6 +125,7 @@ pub fn run_plan(
     let n_new = ranking.layout.entries.iter().filter(|e| !e.kept).count();
 
     ctx.base_count = n_new.max(1);
+    ctx.recommended = Some((method, limit));
     let max_loss = options.max_loss.min((n_new + n_kept).saturating_sub(1));
     let mut condition_cells = cells_of(&condition_studies(
         ctx.settings.run.background_sd,
@@ -140,16 +150,17 @@ pub fn run_plan(
     })
     .collect();
 
+    // Detail scores use each layout's own seed stream under the base conditions, so they
+    // repeat the numbers of the cells that scored the same layout.
     let blocks = ctx.layout_blocks(&ranking.layout);
     let n_details = 2 + blocks.len();
     progress(PlanStage::Details, 0, n_details);
-    let settings = ctx.settings.clone();
-    let recommended_score = ctx.score_blocks(&blocks, &chosen.sensors, &settings, 1.0)?;
+    let recommended_score = ctx.score_base(&blocks)?;
     progress(PlanStage::Details, 1, n_details);
     let grid_score = match ctx.ranking(Method::Grid, Limit::Count(ctx.base_count)) {
         Ok(grid) => {
             let grid_blocks = ctx.layout_blocks(&grid.layout);
-            let score = ctx.score_blocks(&grid_blocks, "grid-baseline", &settings, 1.0)?;
+            let score = ctx.score_base(&grid_blocks)?;
             Some((grid, score))
         }
         Err(_) => None,
@@ -159,8 +170,7 @@ pub fn run_plan(
     for (i, &lost) in blocks.iter().enumerate() {
         let remaining: Vec<usize> = blocks.iter().copied().filter(|&b| b != lost).collect();
         let (candidate, kind) = ctx.problem.block_name(lost);
-        let id = format!("without {candidate}:{kind}");
-        let score = ctx.score_blocks(&remaining, &id, &settings, 1.0)?;
+        let score = ctx.score_base(&remaining)?;
         single_losses.push(SingleLoss {
             candidate,
             kind,

@@ -40,20 +40,21 @@ pub fn cells_of(specs: &[StudySpec]) -> Vec<Cell> {
 
 /// Methods compared by the count study: the designs and both baselines.
 pub const COUNT_METHODS: [&str; 5] = ["greedy", "exchange", "qr", "grid", "random"];
-/// Methods compared when a layout is held fixed and the conditions change.
-pub const CONDITION_METHODS: [&str; 2] = ["greedy", "grid"];
+/// Layouts compared when the conditions change: the recommended layout itself and the evenly
+/// spaced grid with as many new sensors.
+pub const CONDITION_METHODS: [&str; 2] = [super::context::RECOMMENDED, "grid"];
 
 /// Sensor counts 1..=max.
 pub fn count_settings(max_count: usize) -> Vec<f64> {
     (1..=max_count).map(|k| k as f64).collect()
 }
 
-/// Budgets spread over the cost of the largest layout of the count study: a quarter, half,
-/// three quarters and all of `full_cost`, never below the cheapest sensor.
-pub fn budget_settings(full_cost: f64, cheapest: f64) -> Vec<f64> {
+/// Budgets a quarter, half, three quarters and all of `top` (the user's budget, or the cost of
+/// the largest layout of the count study), never below the cheapest sensor.
+pub fn budget_settings(top: f64, cheapest: f64) -> Vec<f64> {
     let mut budgets: Vec<f64> = [0.25, 0.5, 0.75, 1.0]
         .iter()
-        .map(|f| (f * full_cost).max(cheapest))
+        .map(|f| (f * top).max(cheapest))
         .collect();
     budgets.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs().max(1.0));
     budgets
@@ -74,7 +75,8 @@ pub fn design_studies(max_count: usize, budgets: Vec<f64>) -> Vec<StudySpec> {
     ]
 }
 
-/// The second phase: the recommended size under changed conditions and sensor losses.
+/// The second phase: the recommended layout and the grid of the same size under changed
+/// conditions and sensor losses.
 /// Interval multipliers above `max_multiplier` (the slowest sensor would stop reporting
 /// within the test span) are left out.
 pub fn condition_studies(
@@ -109,7 +111,7 @@ pub fn condition_studies(
     if max_loss > 0 {
         specs.push(StudySpec::new(
             StudyKind::Loss,
-            &["greedy", "exchange"],
+            &CONDITION_METHODS,
             (0..=max_loss).map(|f| f as f64).collect(),
         ));
     }
