@@ -6,7 +6,7 @@
 use std::ffi::OsString;
 use std::process::ExitCode;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 mod basis;
 mod check;
@@ -71,13 +71,33 @@ pub enum Command {
     Rank(rank::RankArgs),
 }
 
+/// The clap command of [`Cli`], with every option value allowed to start with `-` when it
+/// is a number: `--energy -0.5` or `--budget -1` then reach crowsnest's own range checks
+/// (one line naming the option, exit code 2) instead of clap's "unexpected argument '-0'".
+fn command() -> clap::Command {
+    Cli::command().mut_subcommands(|sub| {
+        let takes_values: Vec<clap::Id> = sub
+            .get_arguments()
+            .filter(|arg| arg.get_action().takes_values())
+            .map(|arg| arg.get_id().clone())
+            .collect();
+        takes_values.into_iter().fold(sub, |sub, id| {
+            sub.mut_arg(id, |arg| arg.allow_negative_numbers(true))
+        })
+    })
+}
+
 /// Runs crowsnest with the given arguments (the first is the program name).
 pub fn main_with_args<I, T>(args: I) -> ExitCode
 where
     I: IntoIterator<Item = T>,
     T: Into<OsString> + Clone,
 {
-    let cli = match Cli::try_parse_from(args) {
+    let parsed = command()
+        .try_get_matches_from(args)
+        .and_then(|mut matches| Cli::from_arg_matches_mut(&mut matches))
+        .map_err(|err| err.format(&mut command()));
+    let cli = match parsed {
         Ok(cli) => cli,
         Err(err) => {
             let _ = err.print();

@@ -18,12 +18,18 @@ pub struct CsvTable {
 
 impl CsvTable {
     pub fn read(path: &Path) -> Result<Self, IoError> {
+        let bytes = std::fs::read(path).map_err(|e| IoError::file(path, e))?;
+        Self::parse(path, &bytes)
+    }
+
+    /// [`CsvTable::read`] on file content already in memory; `path` only names the file in
+    /// messages.
+    pub fn parse(path: &Path, bytes: &[u8]) -> Result<Self, IoError> {
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(false)
             .flexible(true)
             .trim(csv::Trim::All)
-            .from_path(path)
-            .map_err(|e| csv_error(path, e))?;
+            .from_reader(bytes);
         let mut records = reader.records();
         let header: Vec<String> = match records.next() {
             Some(record) => record

@@ -48,7 +48,16 @@ pub struct LayoutRow {
 
 /// Reads a layout; rows keep file order. Duplicate (candidate, kind) pairs are refused.
 pub fn read_layout_csv(path: &Path) -> Result<Vec<LayoutRow>, IoError> {
-    let t = CsvTable::read(path)?;
+    layout_from_table(&CsvTable::read(path)?)
+}
+
+/// [`read_layout_csv`] on file content already in memory; `path` only names the file in
+/// messages.
+pub fn parse_layout_csv(path: &Path, bytes: &[u8]) -> Result<Vec<LayoutRow>, IoError> {
+    layout_from_table(&CsvTable::parse(path, bytes)?)
+}
+
+fn layout_from_table(t: &CsvTable) -> Result<Vec<LayoutRow>, IoError> {
     let optional: Vec<&str> = LAYOUT_COLUMNS
         .iter()
         .copied()

@@ -29,12 +29,14 @@ pub mod table;
 pub mod zones;
 
 pub use error::IoError;
-pub use layout_file::{read_layout_csv, write_layout_csv, LayoutRow, LAYOUT_COLUMNS};
+pub use layout_file::{
+    parse_layout_csv, read_layout_csv, write_layout_csv, LayoutRow, LAYOUT_COLUMNS,
+};
 pub use npy::{
-    check_shape, read_npy_f64, read_npy_header, write_npy_f32, write_npy_f64, NpyDtype, NpyHeader,
-    NpySnapshots,
+    check_shape, parse_npy_f64, parse_npy_header, read_npy_f64, read_npy_header, write_npy_f32,
+    write_npy_f64, NpyDtype, NpyHeader, NpySnapshots,
 };
 pub use site::*;
 pub use site_flow::{open_snapshots, read_snapshot_csv};
-pub use site_load::{load_site, load_site_for_synth};
+pub use site_load::{load_site, load_site_for_synth, load_site_from_str, parse_candidates_csv};
 pub use snapshots::{InMemorySnapshots, SnapshotSource};

@@ -146,6 +146,22 @@ pub fn read_npy_header(path: &Path) -> Result<NpyHeader, IoError> {
     let mut file = File::open(path).map_err(|e| IoError::file(path, e))?;
     let file_len = file.metadata().map_err(|e| IoError::file(path, e))?.len();
     let header = parse_header(path, &mut file)?;
+    check_data_length(path, &header, file_len)?;
+    Ok(header)
+}
+
+/// [`read_npy_header`] on the bytes of a whole file already in memory; `path` only names
+/// the file in messages. The path reader and this one share every check.
+pub fn parse_npy_header(path: &Path, bytes: &[u8]) -> Result<NpyHeader, IoError> {
+    let mut reader = bytes;
+    let header = parse_header(path, &mut reader)?;
+    check_data_length(path, &header, bytes.len() as u64)?;
+    Ok(header)
+}
+
+/// Refuses a file too short for the data its header announces. The header parser has
+/// already checked that the data size fits in a `usize`.
+fn check_data_length(path: &Path, header: &NpyHeader, file_len: u64) -> Result<(), IoError> {
     let n_bytes = (header.n_elements() as u64).saturating_mul(header.dtype.size() as u64);
     let available = file_len.saturating_sub(header.data_offset);
     if available < n_bytes {
@@ -159,14 +175,14 @@ pub fn read_npy_header(path: &Path) -> Result<NpyHeader, IoError> {
             ),
         ));
     }
-    Ok(header)
+    Ok(())
 }
 
 fn bad_header(path: &Path, message: impl Into<String>) -> IoError {
     IoError::invalid(path, "header", message)
 }
 
-fn parse_header(path: &Path, file: &mut File) -> Result<NpyHeader, IoError> {
+fn parse_header(path: &Path, file: &mut impl Read) -> Result<NpyHeader, IoError> {
     let mut prefix = [0u8; 8];
     read_exact_or(
         path,
@@ -238,6 +254,25 @@ fn parse_header(path: &Path, file: &mut File) -> Result<NpyHeader, IoError> {
         Some((_, PyValue::Tuple(s))) => s.clone(),
         _ => return Err(bad_header(path, "the header has no `shape` tuple")),
     };
+    // Every product of axis lengths (the element count, one snapshot's length, the byte
+    // count) must fit in a usize: a crafted shape must not wrap around and slip past the
+    // length check. Zero-length axes are counted as 1 so a leading 0 cannot hide the rest.
+    let fits = shape
+        .iter()
+        .try_fold(dtype.size(), |acc, &dim| acc.checked_mul(dim.max(1)))
+        .is_some_and(|n_bytes| n_bytes <= isize::MAX as usize);
+    if !fits {
+        return Err(IoError::invalid(
+            path,
+            "shape",
+            format!(
+                "shape {} of {} is too large: its size in bytes overflows; expected a real \
+                 array's shape",
+                shape_text(&shape),
+                dtype.descr()
+            ),
+        ));
+    }
     let data_offset = (6 + 2 + len_bytes + header_len) as u64;
     Ok(NpyHeader {
         shape,
@@ -247,7 +282,12 @@ fn parse_header(path: &Path, file: &mut File) -> Result<NpyHeader, IoError> {
     })
 }
 
-fn read_exact_or(path: &Path, file: &mut File, buf: &mut [u8], what: &str) -> Result<(), IoError> {
+fn read_exact_or(
+    path: &Path,
+    file: &mut impl Read,
+    buf: &mut [u8],
+    what: &str,
+) -> Result<(), IoError> {
     file.read_exact(buf).map_err(|e| {
         if e.kind() == std::io::ErrorKind::UnexpectedEof {
             bad_header(path, what.to_string())
@@ -467,16 +507,26 @@ pub fn check_shape(
 /// or their value). Returns the shape and the values in C order. NaN and infinity are passed
 /// through; callers that need finite values check them.
 pub fn read_npy_f64(path: &Path) -> Result<(Vec<usize>, Vec<f64>), IoError> {
-    let header = read_npy_header(path)?;
+    // Check the header before reading the data, so a bad header is refused without reading
+    // a large file.
+    read_npy_header(path)?.require_c_order(path)?;
+    let bytes = std::fs::read(path).map_err(|e| IoError::file(path, e))?;
+    parse_npy_f64(path, &bytes)
+}
+
+/// [`read_npy_f64`] on the bytes of a whole file already in memory; `path` only names the
+/// file in messages.
+pub fn parse_npy_f64(path: &Path, bytes: &[u8]) -> Result<(Vec<usize>, Vec<f64>), IoError> {
+    let header = parse_npy_header(path, bytes)?;
     header.require_c_order(path)?;
-    let mut file = File::open(path).map_err(|e| IoError::file(path, e))?;
-    file.seek(SeekFrom::Start(header.data_offset))
-        .map_err(|e| IoError::file(path, e))?;
     let size = header.dtype.size();
-    let mut bytes = vec![0u8; header.n_elements() * size];
-    file.read_exact(&mut bytes)
-        .map_err(|e| IoError::file(path, e))?;
-    let values = bytes
+    let start = usize::try_from(header.data_offset).unwrap_or(usize::MAX);
+    // `parse_npy_header` checked that the data are all there.
+    let data = bytes
+        .get(start..)
+        .and_then(|rest| rest.get(..header.n_elements() * size))
+        .ok_or_else(|| IoError::invalid(path, "data", "truncated data"))?;
+    let values = data
         .chunks_exact(size)
         .map(|b| header.dtype.decode(b))
         .collect();

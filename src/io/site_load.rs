@@ -11,11 +11,12 @@
 
 use std::path::{Path, PathBuf};
 
+use super::csv_in::CsvTable;
 use super::keys::{did_you_mean, Section};
 use super::npy::{check_shape, read_npy_f64};
 use super::site::*;
 use super::site_flow::{read_flow, Generated};
-use super::site_mounts::{read_candidates, read_existing, read_kinds};
+use super::site_mounts::{candidates_from_table, read_candidates, read_existing, read_kinds};
 use super::zones::read_polygons;
 use super::IoError;
 
@@ -56,21 +57,61 @@ pub fn load_site_for_synth(path: &Path) -> Result<Site, IoError> {
     load(path, Generated::MayBeMissing)
 }
 
+/// Loads a site from `site.toml` text already in memory; `site_file` names it in messages
+/// and its directory is where the files the text names are looked up (they are read from
+/// disk as usual). [`load_site`] is this function after reading the file.
+pub fn load_site_from_str(site_file: &Path, text: &str) -> Result<Site, IoError> {
+    load_text(site_file, text, Generated::MustExist)
+}
+
+/// Reads candidate rows from CSV content in memory and checks them against `site` (its
+/// plane, domain, kinds, zones and obstacles) exactly as the site loader checks
+/// `candidates.csv`; `path` only names the file in messages. Returns the candidates and the
+/// warnings the loader would add.
+pub fn parse_candidates_csv(
+    site: &Site,
+    path: &Path,
+    bytes: &[u8],
+) -> Result<(Vec<Candidate>, Vec<String>), IoError> {
+    let table = CsvTable::parse(path, bytes)?;
+    let mut warnings = Vec::new();
+    let candidates = candidates_from_table(
+        &table,
+        site.plane,
+        &site.domain,
+        &site.kinds,
+        &site.zones,
+        &site.obstacles,
+        &mut warnings,
+    )?;
+    Ok((candidates, warnings))
+}
+
 fn load(path: &Path, generated: Generated) -> Result<Site, IoError> {
     let site_file = if path.is_dir() {
         path.join("site.toml")
     } else {
         path.to_path_buf()
     };
-    let text = std::fs::read_to_string(&site_file).map_err(|e| IoError::file(&site_file, e))?;
-    let table: toml::Table =
-        toml::from_str(&text).map_err(|e| syntax_error(&site_file, &text, &e))?;
+    let text = std::fs::read_to_string(&site_file).map_err(|e| {
+        let expected = if path.is_dir() {
+            "the site description site.toml in the site directory"
+        } else {
+            "a site directory holding site.toml, or the path of a site .toml file"
+        };
+        IoError::file_expected(&site_file, e, expected)
+    })?;
+    load_text(&site_file, &text, generated)
+}
+
+fn load_text(site_file: &Path, text: &str, generated: Generated) -> Result<Site, IoError> {
+    let table: toml::Table = toml::from_str(text).map_err(|e| syntax_error(site_file, text, &e))?;
     // Messages show paths as the user wrote them; the `Site` holds absolute ones.
     let root = match site_file.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let file = site_file.as_path();
+    let file = site_file;
     let top = Section::new(file, "", &table, TOP_KEYS)?;
     let mut warnings = Vec::new();
 
@@ -327,7 +368,7 @@ fn read_points(
 ) -> Result<PointCloud, IoError> {
     let s = Section::new(file, "points", table, &["file"])?;
     let path = s.req_file("file", root, "a CSV of x, y (or x, z), weight")?;
-    let t = super::csv_in::CsvTable::read(&path)?;
+    let t = CsvTable::read(&path)?;
     let [ax, ay] = axis_names(plane);
     // The coordinate off the plane (z of a plan-view cloud, y of a slice) may be present,
     // as CFD exports write it; it is not used.

@@ -247,6 +247,21 @@ pub(crate) fn read_candidates(
     let s = Section::new(file, "candidates", table, &["file"])?;
     let path = s.req_file("file", root, "a candidates CSV file")?;
     let t = CsvTable::read(&path)?;
+    candidates_from_table(&t, plane, domain, kinds, zones, obstacles, warnings)
+}
+
+/// The rows of a candidates table, checked against the rest of the site. Shared by the
+/// site loader and [`super::parse_candidates_csv`].
+pub(crate) fn candidates_from_table(
+    t: &CsvTable,
+    plane: Plane,
+    domain: &Domain,
+    kinds: &[SensorKind],
+    zones: &[Zone],
+    obstacles: &[Obstacle],
+    warnings: &mut Vec<String>,
+) -> Result<Vec<Candidate>, IoError> {
+    let path = t.path.as_path();
     let [ax, ay] = axis_names(plane);
     t.check_columns(
         &["id", ax, ay, "kinds"],
@@ -387,7 +402,7 @@ pub(crate) fn read_candidates(
     }
     if out.is_empty() {
         return Err(IoError::invalid(
-            &path,
+            path,
             "rows",
             "no candidates; expected at least one data row",
         ));

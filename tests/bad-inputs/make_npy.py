@@ -40,7 +40,19 @@ def not_npy(path):
         f.write("u,v\n1,2\n")
 
 
+def npy_shape_overflow(path):
+    # NumPy cannot make this array: the header claims 2**61 snapshots of 3 x 4 x 2 doubles,
+    # whose byte count (3 * 2**67) wraps to 0 in 64-bit arithmetic. Written by hand
+    # (NEP 1 format 1.0), followed by one value.
+    d = "{'descr': '<f8', 'fortran_order': False, 'shape': (%d, %d, %d, %d), }" % (2**61, NY, NX, C)
+    head = d + " " * (-(10 + len(d) + 1) % 64) + "\n"
+    with open(path, "wb") as f:
+        f.write(b"\x93NUMPY\x01\x00" + len(head).to_bytes(2, "little") + head.encode("ascii"))
+        f.write(np.zeros(1, dtype="<f8").tobytes())
+
+
 SNAPSHOTS = {
+    "npy-shape-overflow": npy_shape_overflow,
     "npy-unsupported-dtype": lambda p: np.save(p, good("<c16")),
     "npy-integer-snapshots": lambda p: np.save(p, good("<i4")),
     "npy-big-endian": lambda p: np.save(p, good(">f8")),
