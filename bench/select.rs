@@ -1,7 +1,9 @@
 //! Speed of the selection kernels (issue 4, item 6): choose k = 50 of 1,000,000 single-row
 //! point candidates with r = 50 modes, by lazy greedy D and by lazy pivoted QR, on the matrix
 //! `bench/select_ref.py make` writes. Prints the times and checks the picks against the NumPy
-//! greedy and LAPACK (`scipy.linalg.qr(..., pivoting=True)`) orders the reference wrote.
+//! greedy and LAPACK (`scipy.linalg.qr(..., pivoting=True)`) orders the reference wrote. Also
+//! times the Joshi–Boyd optimality bound at the same shape (no reference; it must lie above the
+//! greedy layout's D value).
 //!
 //! Not a test: run through `bench/select.sh`, which runs this binary and the reference in one
 //! go and prints the ratios. Usage: `select DIR` (DIR holds `phi.npy`, `ref_greedy.txt`,
@@ -12,8 +14,8 @@ use std::time::Instant;
 
 use crowsnest::io::read_npy_f64;
 use crowsnest::select::{
-    greedy_order, lazy_pivoted_qr, CandidatePlace, CandidateRows, Constraints, Criterion,
-    Feasibility, Limit, Prior, Problem,
+    d_upper_bound, evaluate_set, greedy_order, lazy_pivoted_qr, CandidatePlace, CandidateRows,
+    Constraints, Criterion, Feasibility, Limit, Prior, Problem,
 };
 
 const K: usize = 50;
@@ -92,6 +94,25 @@ fn main() {
     println!("RESULT greedy_cpu_seconds {c_greedy:.4}");
     println!("RESULT qr_seconds {w_qr:.4}");
     println!("RESULT qr_cpu_seconds {c_qr:.4}");
+    // The optimality bound at the same shape (no reference: the certificate is checked here).
+    let (w_bound, c_bound, bound) = timed(|| d_upper_bound(&problem, &feas, Limit::Count(K)));
+    let greedy_d = evaluate_set(&problem, &greedy, Criterion::D);
+    println!("RESULT bound_seconds {w_bound:.4}");
+    println!("RESULT bound_cpu_seconds {c_bound:.4}");
+    println!(
+        "RESULT bound_value {:.6} relaxed {:.6} greedy_d {greedy_d:.6} gap {:.6} converged {} newton_steps {} passes {} working_set {}",
+        bound.bound,
+        bound.relaxed_value,
+        bound.bound - greedy_d,
+        bound.converged,
+        bound.n_iterations,
+        bound.n_passes,
+        bound.n_active
+    );
+    println!(
+        "RESULT bound_valid {}",
+        if bound.bound >= greedy_d { "yes" } else { "NO" }
+    );
     let check = |name: &str, ours: &[usize], file: &str| match read_order(&dir.join(file)) {
         Some(reference) => {
             let same =

@@ -12,10 +12,10 @@ use crate::basis::{compute_for_site_with_warnings, PodOptions, Rank};
 use crate::io::layout_file::{read_layout_csv, write_layout_csv};
 use crate::io::{load_site, Site};
 use crate::select::{
-    prior_from_energies, problem_for_site, rank, site_constraints, Criterion, Limit, Method,
+    prior_from_energies, problem_for_site_packed, rank, site_constraints, Criterion, Limit, Method,
     RankOptions, Ranking, SelectError,
 };
-use crate::sensors::build_blocks;
+use crate::sensors::build_packed;
 
 use super::BadArgument;
 
@@ -125,14 +125,16 @@ pub fn run(args: RankArgs) -> anyhow::Result<()> {
     let basis =
         compute_for_site_with_warnings(&site, &options, &mut |_, _| {}, &mut |w| warnings.push(w))
             .context("computing the POD basis")?;
-    let block_set = build_blocks(&site, &basis)?;
-    warnings.extend(block_set.warnings.iter().cloned());
+    // Packed blocks: one contiguous row matrix, no allocation per candidate.
+    let packed = build_packed(&site, &basis)?;
+    warnings.extend(packed.warnings.iter().cloned());
     let prior = prior_from_energies(
         &basis.energies,
         basis.n_modes(),
         matches!(args.prior, PriorArg::Flat),
     );
-    let problem = problem_for_site(&site, &block_set.blocks, &prior)?;
+    let problem = problem_for_site_packed(&site, &packed, &prior)?;
+    drop(packed);
 
     let mut constraints = site_constraints(&site);
     constraints.min_spacing = args.min_spacing;

@@ -122,6 +122,10 @@ fn grid_count(problem: &Problem, feas: &Feasibility, k: usize) -> Vec<usize> {
     for _ in 0..400 {
         let nx = ((w / h).ceil() as usize).max(1);
         let ny = ((h_extent / h).ceil() as usize).max(1);
+        if nx.saturating_mul(ny) > 64 * cands.len() + 64 {
+            // A finer grid reaches no new mount: the constraints allow no more (keep the last).
+            break;
+        }
         let mut state = feas.with_chosen(&[]);
         let mut used = vec![false; problem.places.len()];
         picks.clear();

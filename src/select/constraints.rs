@@ -71,6 +71,8 @@ pub struct Feasibility<'a> {
     kind_count: Vec<usize>,
     /// Kept blocks, in the order given.
     pub kept_blocks: Vec<usize>,
+    /// Positions with a block that are neither removed nor excluded (kept ones included).
+    pub n_open_positions: usize,
     pub warnings: Vec<String>,
 }
 
@@ -117,8 +119,17 @@ impl<'a> Feasibility<'a> {
             zone_count: HashMap::new(),
             kind_count: vec![0; problem.kind_names.len().max(1 + max_kind(problem))],
             kept_blocks: Vec::new(),
+            n_open_positions: 0,
             warnings: Vec::new(),
         };
+        let mut open = vec![false; n_candidates];
+        for b in 0..problem.n_blocks() {
+            let c = problem.block_candidate[b];
+            if c < n_candidates && !removed[c] && excluded_by[c].is_none() {
+                open[c] = true;
+            }
+        }
+        state.n_open_positions = open.iter().filter(|&&o| o).count();
         for &(c, k) in &constraints.keep {
             let (candidate, kind) = (
                 problem
@@ -250,6 +261,7 @@ impl<'a> Feasibility<'a> {
             zone_count: HashMap::new(),
             kind_count: vec![0; self.kind_count.len()],
             kept_blocks: self.kept_blocks.clone(),
+            n_open_positions: self.n_open_positions,
             warnings: Vec::new(),
         };
         for &b in self.kept_blocks.iter().chain(chosen) {

@@ -97,32 +97,60 @@ fn pair_change(
     }
 }
 
-/// Refines the new blocks `chosen` by best-improvement swaps; returns the refined set.
+/// Result of [`exchange`].
+pub(crate) struct Exchanged {
+    pub set: Vec<usize>,
+    pub n_swaps: usize,
+    /// True when the swap cap stopped the search while swaps still improved the criterion.
+    pub capped: bool,
+}
+
+/// Refines the new blocks `chosen` by best-improvement swaps (at most `20 k + 100`).
 pub(crate) fn exchange(
     problem: &Problem,
     feas: &Feasibility,
     criterion: Criterion,
     limit: Limit,
     chosen: &[usize],
-) -> Vec<usize> {
+) -> Exchanged {
+    exchange_capped(
+        problem,
+        feas,
+        criterion,
+        limit,
+        chosen,
+        20 * chosen.len() + 100,
+    )
+}
+
+fn exchange_capped(
+    problem: &Problem,
+    feas: &Feasibility,
+    criterion: Criterion,
+    limit: Limit,
+    chosen: &[usize],
+    max_swaps: usize,
+) -> Exchanged {
     let r = problem.n_modes();
     let mut set: Vec<usize> = chosen.to_vec();
     let budget = match limit {
         Limit::Budget(b) => b,
         Limit::Count(_) => f64::INFINITY,
     };
-    let max_swaps = 20 * set.len() + 100;
     let all_with = |set: &[usize]| {
         let mut all = feas.kept_blocks.clone();
         all.extend_from_slice(set);
         all
     };
+    let mut n_swaps = 0;
+    let mut capped = true;
     for _ in 0..max_swaps {
         let all = all_with(&set);
         let value = evaluate_set(problem, &all, criterion);
         let spent: f64 = set.iter().map(|&b| problem.block_cost[b]).sum();
         let m = scaled_information(problem, &all);
         let Some(p_mat) = spd_inverse(&m, r) else {
+            capped = false;
             break;
         };
         // y_i = P b_i for every row (P symmetric, so row-major product is fine).
@@ -173,9 +201,61 @@ pub(crate) fn exchange(
         match best {
             Some((gain, pos, c)) if gain > MIN_RELATIVE_IMPROVEMENT * (1.0 + value.abs()) => {
                 set[pos] = c;
+                n_swaps += 1;
             }
-            _ => break,
+            _ => {
+                capped = false;
+                break;
+            }
         }
     }
-    set
+    Exchanged {
+        set,
+        n_swaps,
+        capped,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::select::{CandidatePlace, CandidateRows, Constraints, Prior};
+
+    /// Starting from the worst rows, one swap cannot reach the optimum: the cap is reported;
+    /// with the normal cap the search ends on its own (no improving swap left).
+    #[test]
+    fn swap_cap_is_reported() {
+        let n = 12;
+        // Row i is i·e_(i mod 3): the last rows of each direction are the strongest.
+        let data: Vec<f64> = (0..n)
+            .flat_map(|i| (0..3).map(move |m| if m == i % 3 { 1.0 + i as f64 } else { 0.0 }))
+            .collect();
+        let places = (0..n)
+            .map(|i| CandidatePlace {
+                id: format!("c{i}"),
+                position: [i as f64, 0.0],
+                zone: String::new(),
+            })
+            .collect();
+        let problem = Problem::from_noise_whitened(
+            CandidateRows::from_single_rows(3, data),
+            (0..n).collect(),
+            vec![0; n],
+            vec![1.0; n],
+            &Prior::Energies(vec![1.0; 3]),
+            places,
+            vec!["p".into()],
+        )
+        .unwrap();
+        let c = Constraints::default();
+        let feas = Feasibility::new(&problem, &c).unwrap();
+        let start = [0, 1, 2];
+        let short = exchange_capped(&problem, &feas, Criterion::D, Limit::Count(3), &start, 1);
+        assert!(short.capped && short.n_swaps == 1);
+        let full = exchange(&problem, &feas, Criterion::D, Limit::Count(3), &start);
+        assert!(!full.capped && full.n_swaps == 3, "{}", full.n_swaps);
+        let mut set = full.set.clone();
+        set.sort_unstable();
+        assert_eq!(set, vec![9, 10, 11]);
+    }
 }

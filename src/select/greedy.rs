@@ -7,9 +7,20 @@
 //! beat the best fresh gain are brought up to date (batched search in `lazy.rs`). Bringing a block up to date
 //! applies only the posterior columns added since its last refresh (`S ← S − (B u)(B u)ᵀ` on
 //! its cached `S = I + B P Bᵀ`), so a whole run costs O(k·n·r) at worst and far less in
-//! practice; there is never a factorisation per candidate. A and E gains are not submodular,
-//! so they are rescored every step (A by the Woodbury trace reduction, E exactly, with an
-//! interlacing upper bound to skip hopeless candidates; ties in E are broken by the D gain).
+//! practice; there is never a factorisation per candidate.
+//!
+//! A and E gains are not submodular (a sensor added now can raise another's gain later), so a
+//! stale gain is no upper bound and lazy evaluation would not be exact; they are rescored every
+//! step. A keeps `P bᵀ` for every row and updates it by one O(r) step per new posterior column,
+//! so a score is the Sherman–Morrison trace reduction `‖Λ^{1/2}Pb‖²/(1 + bᵀPb)` (Woodbury with a
+//! `p × p` solve for a `p`-row block): O(k·n·r) for a whole run, like D. E (λ_min) has no cheap
+//! exact update for blocks; per step it does one `r × r` eigensolve of `J`, bounds every
+//! candidate's new λ_min from above (Rayleigh quotient at the current minimum eigenvector and
+//! Cauchy interlacing) and evaluates exactly only the candidates whose bound can still win,
+//! best bound first: single rows by the secular equation of the rank-one update (Golub 1973,
+//! O(r²)), multi-row blocks by a fresh `r × r` eigensolve — the one place a factorisation per
+//! candidate remains, limited to the candidates the bound cannot rule out. Ties in E are
+//! broken by the D gain.
 //!
 //! Budgets use cost-benefit greedy (gain per unit cost) guarded by the best single affordable
 //! block and by the plain greedy within budget; the best of the three is returned, which keeps
@@ -366,15 +377,26 @@ fn best_e_addition(
         let gain = if ub_key * div <= tol {
             0.0
         } else {
-            trial.copy_from_slice(j);
-            for row in problem.rows.block(b).chunks_exact(r) {
-                for a in 0..r {
-                    for c in 0..r {
-                        trial[a * r + c] += row[a] * inv_sqrt[a] * row[c] * inv_sqrt[c];
+            let block = problem.rows.block(b);
+            if block.len() == r {
+                // Rank-one update: the new λ_min is the root of the secular equation in
+                // [d_0, d_1] (Golub 1973), O(r²) for the projection instead of an eigensolve.
+                let h: Vec<f64> = (0..r).map(|m| block[m] * inv_sqrt[m]).collect();
+                let c: Vec<f64> = (0..r)
+                    .map(|i| (0..r).map(|m| v[m * r + i] * h[m]).sum())
+                    .collect();
+                (secular_min_root(&d, &c) - d[0]).max(0.0)
+            } else {
+                trial.copy_from_slice(j);
+                for row in block.chunks_exact(r) {
+                    for a in 0..r {
+                        for c in 0..r {
+                            trial[a * r + c] += row[a] * inv_sqrt[a] * row[c] * inv_sqrt[c];
+                        }
                     }
                 }
+                (symmetric_min_eigenvalue(&trial, r)? - d[0]).max(0.0)
             }
-            (symmetric_min_eigenvalue(&trial, r)? - d[0]).max(0.0)
         };
         let k = gain / div;
         let dg = d_state.d_gain(problem.rows.block(b));
@@ -397,6 +419,35 @@ fn best_e_addition(
     best.map(|(_, _, b)| b)
 }
 
+/// Smallest eigenvalue of `diag(d) + c cᵀ` (`d` ascending): the root of the secular equation
+/// `1 + Σ c_i² / (d_i − λ) = 0` in `[d_0, min(d_1, d_0 + ‖c‖²)]`, by bisection (the function
+/// rises monotonically there; Golub 1973, "Some modified matrix eigenvalue problems").
+pub(crate) fn secular_min_root(d: &[f64], c: &[f64]) -> f64 {
+    let norm: f64 = c.iter().map(|v| v * v).sum();
+    let mut lo = d[0];
+    let mut hi = d[0] + norm;
+    if d.len() > 1 {
+        hi = hi.min(d[1]);
+    }
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        let g: f64 = 1.0
+            + d.iter()
+                .zip(c)
+                .map(|(di, ci)| ci * ci / (di - mid))
+                .sum::<f64>();
+        if g < 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
 /// The block of `candidates` that most raises λ_min(J) from `state` (E criterion).
 pub(crate) fn best_e_block(
     problem: &Problem,
@@ -407,7 +458,104 @@ pub(crate) fn best_e_block(
     best_e_addition(problem, &j, candidates, state, false)
 }
 
-/// Greedy that rescores every feasible block each step (A and E).
+/// `P bᵀ` cached for every candidate row (A criterion), brought up to date with one O(r) step
+/// per row and new posterior column `u` (`P ← P − u uᵀ`, so `P b ← P b − u (uᵀ b)`).
+struct PosteriorRows {
+    pb: Vec<f64>,
+    n_u: usize,
+}
+
+/// Rows per task when updating [`PosteriorRows`] (fixed: bit-identical for any thread count).
+const POST_CHUNK: usize = 1024;
+
+impl PosteriorRows {
+    fn new(problem: &Problem, state: &InfoState) -> Self {
+        let r = problem.n_modes();
+        let mut pb = vec![0.0; problem.rows.n_rows() * r];
+        pb.par_chunks_mut(POST_CHUNK * r)
+            .enumerate()
+            .for_each(|(chunk, out)| {
+                for (i, o) in out.chunks_exact_mut(r).enumerate() {
+                    state.apply_p(problem.rows.row(chunk * POST_CHUNK + i), o);
+                }
+            });
+        PosteriorRows {
+            pb,
+            n_u: state.n_u(),
+        }
+    }
+
+    fn catch_up(&mut self, problem: &Problem, state: &InfoState) {
+        let r = problem.n_modes();
+        let from = self.n_u;
+        if from == state.n_u() {
+            return;
+        }
+        self.pb
+            .par_chunks_mut(POST_CHUNK * r)
+            .enumerate()
+            .for_each(|(chunk, out)| {
+                for (i, o) in out.chunks_exact_mut(r).enumerate() {
+                    let row = problem.rows.row(chunk * POST_CHUNK + i);
+                    for j in from..state.n_u() {
+                        let u = state.u_col(j);
+                        let c = dot(u, row);
+                        o.iter_mut().zip(u).for_each(|(p, ui)| *p -= c * ui);
+                    }
+                }
+            });
+        self.n_u = state.n_u();
+    }
+
+    /// Decrease of trace J⁻¹ from adding block `b`: for one row the Sherman–Morrison form
+    /// `‖Λ^{1/2} P b‖² / (1 + bᵀ P b)`, for `p` rows `trace(S⁻¹ (P Bᵀ)ᵀ Λ (P Bᵀ))` with the
+    /// `p × p` matrix `S = I + B P Bᵀ` (Woodbury) — never an `r × r` factorisation.
+    fn a_reduction(&self, problem: &Problem, b: usize) -> f64 {
+        let r = problem.n_modes();
+        let lambda = &problem.prior_var;
+        let range = problem.rows.block_range(b);
+        let pb = &self.pb[range.start * r..range.end * r];
+        let block = problem.rows.block(b);
+        let p = range.len();
+        if p == 1 {
+            let q = dot(block, pb).max(0.0);
+            let w: f64 = pb.iter().zip(lambda).map(|(x, l)| l * x * x).sum();
+            return w / (1.0 + q);
+        }
+        let mut s = vec![0.0; p * p];
+        for i in 0..p {
+            for j in 0..p {
+                s[i * p + j] = dot(&block[i * r..(i + 1) * r], &pb[j * r..(j + 1) * r])
+                    + if i == j { 1.0 } else { 0.0 };
+            }
+        }
+        // Exact symmetry for the Cholesky-based inverse.
+        for i in 0..p {
+            for j in 0..i {
+                let v = 0.5 * (s[i * p + j] + s[j * p + i]);
+                s[i * p + j] = v;
+                s[j * p + i] = v;
+            }
+        }
+        let Some(s_inv) = super::dense::spd_inverse(&s, p) else {
+            return 0.0;
+        };
+        let mut total = 0.0;
+        for i in 0..p {
+            for j in 0..p {
+                let w: f64 = (0..r)
+                    .map(|m| lambda[m] * pb[i * r + m] * pb[j * r + m])
+                    .sum();
+                total += s_inv[i * p + j] * w;
+            }
+        }
+        total.max(0.0)
+    }
+}
+
+/// Greedy that rescores every feasible block each step (A and E). A gains are not submodular
+/// (adding a sensor can raise another's trace reduction), so lazy evaluation would not be exact;
+/// instead each rescoring is cheap: O(r) per row and step through [`PosteriorRows`].
 fn rescoring_greedy(
     problem: &Problem,
     feas: &Feasibility,
@@ -418,6 +566,7 @@ fn rescoring_greedy(
 ) -> Vec<usize> {
     let mut feas = feas.with_chosen(start);
     let mut state = kept_state(problem, &feas, start, criterion == Criterion::E);
+    let mut post = (criterion == Criterion::A).then(|| PosteriorRows::new(problem, &state));
     let floor = cost_floor(problem);
     let (max_count, mut remaining) = match limit {
         Limit::Count(k) => (k, f64::INFINITY),
@@ -437,13 +586,24 @@ fn rescoring_greedy(
                 best_e_addition(problem, &j, &open, &state, per_cost)
             }
             _ => {
+                let gains: Vec<f64> = match post.as_mut() {
+                    Some(post) => {
+                        post.catch_up(problem, &state);
+                        let post = &*post;
+                        let gain = |&b: &usize| post.a_reduction(problem, b);
+                        if open.len() >= PARALLEL_MIN {
+                            open.par_iter().map(gain).collect()
+                        } else {
+                            open.iter().map(gain).collect()
+                        }
+                    }
+                    None => open
+                        .iter()
+                        .map(|&b| state.d_gain(problem.rows.block(b)))
+                        .collect(),
+                };
                 let mut best: Option<(f64, usize)> = None;
-                for &b in &open {
-                    let block = problem.rows.block(b);
-                    let gain = match criterion {
-                        Criterion::A => state.a_reduction(block, &problem.prior_var),
-                        _ => state.d_gain(block),
-                    };
+                for (&b, &gain) in open.iter().zip(&gains) {
                     let k = if per_cost {
                         gain / problem.block_cost[b].max(floor)
                     } else {
@@ -500,6 +660,33 @@ pub fn greedy_order_from(
     criterion: Criterion,
     limit: Limit,
 ) -> Vec<usize> {
+    budgeted_with_guards(problem, feas, start, criterion, limit, Guards::ALL)
+}
+
+/// Which guards back up cost-benefit greedy under a budget (all of them outside tests).
+#[derive(Debug, Clone, Copy)]
+struct Guards {
+    /// Plain greedy (largest gain first) within the budget (Krause & Guestrin 2005).
+    plain: bool,
+    /// The best single affordable block (Khuller, Moss & Naor 1999).
+    single: bool,
+}
+
+impl Guards {
+    const ALL: Guards = Guards {
+        plain: true,
+        single: true,
+    };
+}
+
+fn budgeted_with_guards(
+    problem: &Problem,
+    feas: &Feasibility,
+    start: &[usize],
+    criterion: Criterion,
+    limit: Limit,
+    guards: Guards,
+) -> Vec<usize> {
     match limit {
         Limit::Count(_) => plain_greedy(problem, feas, start, criterion, limit, false),
         Limit::Budget(_) => {
@@ -509,11 +696,15 @@ pub fn greedy_order_from(
                 all.extend_from_slice(order);
                 evaluate_set(problem, &all, criterion)
             };
-            let mut options = vec![
-                plain_greedy(problem, feas, start, criterion, limit, true),
-                plain_greedy(problem, feas, start, criterion, limit, false),
-            ];
-            let single = plain_greedy(problem, feas, start, criterion, Limit::Count(1), false);
+            let mut options = vec![plain_greedy(problem, feas, start, criterion, limit, true)];
+            if guards.plain {
+                options.push(plain_greedy(problem, feas, start, criterion, limit, false));
+            }
+            let single = if guards.single {
+                plain_greedy(problem, feas, start, criterion, Limit::Count(1), false)
+            } else {
+                Vec::new()
+            };
             if let (Some(&b), Limit::Budget(budget)) = (single.first(), limit) {
                 if problem.block_cost[b] <= budget {
                     options.push(single);
@@ -581,4 +772,54 @@ pub(crate) fn order_within(
         order.push(b);
     }
     order
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::select::{CandidatePlace, CandidateRows, Constraints, Prior};
+
+    /// Khuller, Moss & Naor (1999): cheap sensor with a tiny gain (best gain per cost) versus
+    /// one that costs the whole budget. Cost-benefit greedy alone is arbitrarily bad here; the
+    /// best-single guard on its own (plain-greedy guard off) must pick the expensive sensor.
+    /// Fails if the best-single guard is removed.
+    #[test]
+    fn best_single_guard_decides_adversarial_budget() {
+        let problem = Problem::from_noise_whitened(
+            CandidateRows::from_single_rows(2, vec![0.01, 0.0, 0.0, 1000.0]),
+            vec![0, 1],
+            vec![0, 0],
+            vec![1e-4, 100.0],
+            &Prior::Energies(vec![1.0, 1.0]),
+            (0..2)
+                .map(|i| CandidatePlace {
+                    id: format!("c{i}"),
+                    position: [i as f64, 0.0],
+                    zone: String::new(),
+                })
+                .collect(),
+            vec!["p".into()],
+        )
+        .unwrap();
+        let c = Constraints::default();
+        let feas = Feasibility::new(&problem, &c).unwrap();
+        let run = |plain, single| {
+            budgeted_with_guards(
+                &problem,
+                &feas,
+                &[],
+                Criterion::D,
+                Limit::Budget(100.0),
+                Guards { plain, single },
+            )
+        };
+        // Cost-benefit greedy alone: the cheap sensor, ≈ 10⁻⁴ nats of the optimum's 13.8.
+        assert_eq!(run(false, false), vec![0]);
+        assert_eq!(run(false, true), vec![1]);
+        assert_eq!(run(true, false), vec![1]);
+        assert_eq!(
+            greedy_order(&problem, &feas, Criterion::D, Limit::Budget(100.0)),
+            vec![1]
+        );
+    }
 }

@@ -38,7 +38,10 @@ pub use problem::{Prior, Problem};
 pub use qr::{lazy_pivoted_qr, QrOrder};
 pub use rank::{rank, score_order, Method, RankOptions, Ranking};
 pub use rows::{CandidateRows, FLAT_PRIOR_EPSILON};
-pub use site_problem::{places_for_site, prior_from_energies, problem_for_site, site_constraints};
+pub use site_problem::{
+    places_for_site, prior_from_energies, problem_for_site, problem_for_site_packed,
+    site_constraints,
+};
 
 /// One chosen sensor of a ranked layout.
 #[derive(Debug, Clone)]
@@ -68,6 +71,8 @@ pub struct Layout {
 pub enum SelectError {
     #[error("no admissible candidate: all {n_candidates} candidates are removed or lie in an exclusion zone")]
     NoAdmissibleCandidates { n_candidates: usize },
+    #[error("no free mount left: all {n_open} admissible mounts (outside exclusion zones and removals) already hold kept sensors ({n_kept} kept: the site's existing sensors and --keep), so no new sensor can be placed (the count can be at most 0); keep fewer sensors, or free mounts by changing --remove or the exclusion zones")]
+    AllMountsKept { n_open: usize, n_kept: usize },
     #[error("--count {requested} is above the {n_admissible} admissible candidate positions (after exclusion zones, removals and kept sensors); ask for at most {n_admissible}")]
     CountTooLarge {
         requested: usize,

@@ -12,7 +12,7 @@
 use super::constraints::CandidatePlace;
 use super::rows::{CandidateRows, FLAT_PRIOR_EPSILON};
 use super::SelectError;
-use crate::sensors::Block;
+use crate::sensors::{Block, PackedBlocks};
 
 /// Prior covariance of the modal coefficients.
 #[derive(Debug, Clone)]
@@ -108,6 +108,74 @@ impl Problem {
             blocks.iter().map(|b| b.candidate_idx).collect(),
             blocks.iter().map(|b| b.kind_idx).collect(),
             blocks.iter().map(|b| b.cost).collect(),
+            prior,
+            places,
+            kind_names,
+        )
+    }
+
+    /// Builds the problem from packed sensor blocks (`sensors::build_packed`): the same checks
+    /// and result as [`Problem::from_blocks`] without one allocation per candidate.
+    pub fn from_packed(
+        packed: &PackedBlocks,
+        prior: &Prior,
+        places: Vec<CandidatePlace>,
+        kind_names: Vec<String>,
+    ) -> Result<Self, SelectError> {
+        let n_blocks = packed.n_blocks();
+        if n_blocks == 0 {
+            return Err(SelectError::NoBlocks);
+        }
+        let r = packed.n_modes;
+        let name = |b: usize| {
+            let (c, k) = (packed.candidate_idx[b], packed.kind_idx[b]);
+            (
+                places
+                    .get(c)
+                    .map_or_else(|| format!("#{c}"), |p| p.id.clone()),
+                kind_names
+                    .get(k)
+                    .cloned()
+                    .unwrap_or_else(|| format!("#{k}")),
+            )
+        };
+        let mut data = Vec::with_capacity(packed.h.len());
+        let mut rows_per_block = Vec::with_capacity(n_blocks);
+        for b in 0..n_blocks {
+            let (first, last) = (packed.row_start[b], packed.row_start[b + 1]);
+            for (row, global) in (first..last).enumerate() {
+                let var = packed.noise_var[global];
+                if !(var.is_finite() && var > 0.0) {
+                    let (candidate, kind) = name(b);
+                    return Err(SelectError::BadNoise {
+                        candidate,
+                        kind,
+                        row,
+                        value: var,
+                    });
+                }
+                let w = 1.0 / var.sqrt();
+                for (mode, &v) in packed.h[global * r..(global + 1) * r].iter().enumerate() {
+                    if !v.is_finite() {
+                        let (candidate, kind) = name(b);
+                        return Err(SelectError::NonFiniteRows {
+                            candidate,
+                            kind,
+                            row,
+                            mode,
+                        });
+                    }
+                    data.push(v * w);
+                }
+            }
+            rows_per_block.push(last - first);
+        }
+        let rows = CandidateRows::from_blocks(r, data, &rows_per_block);
+        Self::from_noise_whitened(
+            rows,
+            packed.candidate_idx.clone(),
+            packed.kind_idx.clone(),
+            packed.cost.clone(),
             prior,
             places,
             kind_names,

@@ -101,6 +101,13 @@ pub fn score_order(
 
 fn check_request(problem: &Problem, feas: &Feasibility, limit: Limit) -> Result<(), SelectError> {
     let n_admissible = feas.n_admissible_positions();
+    if n_admissible == 0 && feas.n_open_positions > 0 {
+        // Every mount left after exclusions and removals holds a kept sensor.
+        return Err(SelectError::AllMountsKept {
+            n_open: feas.n_open_positions,
+            n_kept: feas.kept_blocks.len(),
+        });
+    }
     if n_admissible == 0 {
         return Err(SelectError::NoAdmissibleCandidates {
             n_candidates: problem.places.len(),
@@ -178,13 +185,21 @@ pub fn rank(problem: &Problem, options: &RankOptions) -> Result<Ranking, SelectE
     check_request(problem, &feas, options.limit)?;
     let criterion = options.criterion;
     let limit = options.limit;
+    let mut warnings = problem.warnings.clone();
+    warnings.extend(feas.warnings.iter().cloned());
     let order = match options.method {
         Method::Greedy => greedy_order(problem, &feas, criterion, limit),
         Method::Qr => qr_order(problem, &feas, criterion, limit),
         Method::Exchange => {
             let start = greedy_order(problem, &feas, criterion, limit);
-            let set = exchange(problem, &feas, criterion, limit, &start);
-            order_within(problem, &feas, criterion, &set)
+            let done = exchange(problem, &feas, criterion, limit, &start);
+            if done.capped {
+                warnings.push(format!(
+                    "note: exchange stopped at its cap of {} swaps while swaps still improved the criterion; the layout is valid but may not be a local optimum",
+                    done.n_swaps
+                ));
+            }
+            order_within(problem, &feas, criterion, &done.set)
         }
         Method::Random => {
             let set = random_best(
@@ -202,8 +217,6 @@ pub fn rank(problem: &Problem, options: &RankOptions) -> Result<Ranking, SelectE
             order_within(problem, &feas, criterion, &set)
         }
     };
-    let mut warnings = problem.warnings.clone();
-    warnings.extend(feas.warnings.iter().cloned());
     if let Limit::Count(k) = limit {
         if order.len() < k {
             warnings.push(format!(
@@ -219,8 +232,8 @@ pub fn rank(problem: &Problem, options: &RankOptions) -> Result<Ranking, SelectE
     let bound = d_upper_bound(problem, &feas, limit);
     if !bound.converged {
         warnings.push(format!(
-            "note: the optimality bound did not fully converge in {} iterations; it is still a valid upper bound, the gap may be overstated",
-            bound.n_iterations
+            "note: the optimality bound did not fully converge ({} Newton steps, {} passes over the candidates, working set of {}); it is still a valid upper bound, the gap may be overstated",
+            bound.n_iterations, bound.n_passes, bound.n_active
         ));
     }
     let gap = (bound.bound - d_value).max(0.0);

@@ -3,7 +3,7 @@
 //! command that ranks (`rank`, `sweep`, `plan`, `rescore`).
 
 use crate::io::Site;
-use crate::sensors::Block;
+use crate::sensors::{Block, PackedBlocks};
 
 use super::constraints::{CandidatePlace, Constraints};
 use super::problem::{Prior, Problem};
@@ -56,4 +56,15 @@ pub fn problem_for_site(
 ) -> Result<Problem, SelectError> {
     let kind_names = site.kinds.iter().map(|k| k.name.clone()).collect();
     Problem::from_blocks(blocks, prior, places_for_site(site), kind_names)
+}
+
+/// [`problem_for_site`] from packed blocks (`sensors::build_packed`): one contiguous row
+/// matrix instead of a `Block` per candidate, for large candidate sets.
+pub fn problem_for_site_packed(
+    site: &Site,
+    packed: &PackedBlocks,
+    prior: &Prior,
+) -> Result<Problem, SelectError> {
+    let kind_names = site.kinds.iter().map(|k| k.name.clone()).collect();
+    Problem::from_packed(packed, prior, places_for_site(site), kind_names)
 }
