@@ -1138,8 +1138,7 @@ fn rank_command_on_harbour_quay() {
     let table_rows = stdout
         .lines()
         .filter(|l| {
-            l.trim_start()
-                .split_whitespace()
+            l.split_whitespace()
                 .next()
                 .is_some_and(|w| w.parse::<usize>().is_ok())
         })

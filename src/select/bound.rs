@@ -324,7 +324,7 @@ impl Relaxation<'_> {
                 let nu = if aw > 0.0 { ax / aw } else { 0.0 };
                 let step: Vec<f64> = (0..m).map(|i| rhs[(i, 0)] - nu * rhs[(i, 1)]).collect();
                 let decrement: f64 = d.iter().zip(&step).map(|(d, s)| d * s).sum();
-                if !(decrement > 1e-12 * (1.0 + f.abs())) {
+                if decrement.is_nan() || decrement <= 1e-12 * (1.0 + f.abs()) {
                     break;
                 }
                 let mut t: f64 = 1.0;
