@@ -675,7 +675,7 @@ mod tests {
             data[(t, 1)] = 0.5 * (0.3 * t as f64).sin();
             x = 0.923 * x + x * x;
         }
-        let base = 1e-12;
+        let base = 1e-6;
         let settings = ModelSettings {
             model: ModelKind::Quadratic,
             tikhonov: base,
