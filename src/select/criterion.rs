@@ -145,28 +145,12 @@ impl InfoState {
     /// `trace(S⁻¹ (P Bᵀ)ᵀ Λ (P Bᵀ))` (Woodbury).
     pub fn a_reduction(&self, block: &[f64], prior_var: &[f64]) -> f64 {
         let r = self.n_modes;
-        let mut pb = Vec::new();
-        if block.len() == r {
-            pb.resize(r, 0.0);
-            self.apply_p(block, &mut pb);
-            let q = dot(block, &pb).max(0.0);
-            let w: f64 = pb.iter().zip(prior_var).map(|(x, l)| l * x * x).sum();
-            return w / (1.0 + q);
-        }
-        let (s, p) = self.block_s(block, &mut pb);
-        let Some(s_inv) = super::dense::spd_inverse(&s, p) else {
-            return 0.0;
-        };
-        let mut total = 0.0;
+        let p = block.len() / r;
+        let mut pb = vec![0.0; p * r];
         for i in 0..p {
-            for j in 0..p {
-                let w: f64 = (0..r)
-                    .map(|m| prior_var[m] * pb[i * r + m] * pb[j * r + m])
-                    .sum();
-                total += s_inv[i * p + j] * w;
-            }
+            self.apply_p(&block[i * r..(i + 1) * r], &mut pb[i * r..(i + 1) * r]);
         }
-        total.max(0.0)
+        a_reduction_from(block, &pb, prior_var)
     }
 
     /// Absorbs a block (row-major rows); returns its D gain.
@@ -248,6 +232,41 @@ pub fn evaluate_set(problem: &Problem, blocks: &[usize], criterion: Criterion) -
         state.add_block(problem.rows.block(b));
     }
     state.value(criterion, problem)
+}
+
+/// Decrease of trace J⁻¹ from adding a block of `p` rows `B` (row-major), given the rows of
+/// `P Bᵀ` in `pb`: for one row the Sherman–Morrison form `‖Λ^{1/2} P b‖² / (1 + bᵀ P b)`, for
+/// `p` rows `trace(S⁻¹ (P Bᵀ)ᵀ Λ (P Bᵀ))` with the `p × p` matrix `S = I + B P Bᵀ`
+/// (Woodbury) — never an `r × r` factorisation.
+pub(super) fn a_reduction_from(block: &[f64], pb: &[f64], prior_var: &[f64]) -> f64 {
+    let r = prior_var.len();
+    let p = block.len() / r;
+    if p == 1 {
+        let q = dot(block, pb).max(0.0);
+        let w: f64 = pb.iter().zip(prior_var).map(|(x, l)| l * x * x).sum();
+        return w / (1.0 + q);
+    }
+    let mut s = vec![0.0; p * p];
+    for i in 0..p {
+        for j in 0..=i {
+            let v = dot(&block[i * r..(i + 1) * r], &pb[j * r..(j + 1) * r]);
+            s[i * p + j] = v + if i == j { 1.0 } else { 0.0 };
+            s[j * p + i] = s[i * p + j];
+        }
+    }
+    let Some(s_inv) = super::dense::spd_inverse(&s, p) else {
+        return 0.0;
+    };
+    let mut total = 0.0;
+    for i in 0..p {
+        for j in 0..p {
+            let w: f64 = (0..r)
+                .map(|m| prior_var[m] * pb[i * r + m] * pb[j * r + m])
+                .sum();
+            total += s_inv[i * p + j] * w;
+        }
+    }
+    total.max(0.0)
 }
 
 #[cfg(test)]

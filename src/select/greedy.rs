@@ -31,7 +31,7 @@ use std::cmp::Ordering;
 use rayon::prelude::*;
 
 use super::constraints::Feasibility;
-use super::criterion::{evaluate_set, Criterion, InfoState};
+use super::criterion::{a_reduction_from, evaluate_set, Criterion, InfoState};
 use super::dense::{symmetric_eigen, symmetric_min_eigenvalue};
 use super::lazy::{lazy_argmax, Refresh};
 use super::pending::subtract_pending_squares;
@@ -507,49 +507,12 @@ impl PosteriorRows {
         self.n_u = state.n_u();
     }
 
-    /// Decrease of trace J⁻¹ from adding block `b`: for one row the Sherman–Morrison form
-    /// `‖Λ^{1/2} P b‖² / (1 + bᵀ P b)`, for `p` rows `trace(S⁻¹ (P Bᵀ)ᵀ Λ (P Bᵀ))` with the
-    /// `p × p` matrix `S = I + B P Bᵀ` (Woodbury) — never an `r × r` factorisation.
+    /// Decrease of trace J⁻¹ from adding block `b`, from the cached `P Bᵀ` rows.
     fn a_reduction(&self, problem: &Problem, b: usize) -> f64 {
         let r = problem.n_modes();
-        let lambda = &problem.prior_var;
         let range = problem.rows.block_range(b);
         let pb = &self.pb[range.start * r..range.end * r];
-        let block = problem.rows.block(b);
-        let p = range.len();
-        if p == 1 {
-            let q = dot(block, pb).max(0.0);
-            let w: f64 = pb.iter().zip(lambda).map(|(x, l)| l * x * x).sum();
-            return w / (1.0 + q);
-        }
-        let mut s = vec![0.0; p * p];
-        for i in 0..p {
-            for j in 0..p {
-                s[i * p + j] = dot(&block[i * r..(i + 1) * r], &pb[j * r..(j + 1) * r])
-                    + if i == j { 1.0 } else { 0.0 };
-            }
-        }
-        // Exact symmetry for the Cholesky-based inverse.
-        for i in 0..p {
-            for j in 0..i {
-                let v = 0.5 * (s[i * p + j] + s[j * p + i]);
-                s[i * p + j] = v;
-                s[j * p + i] = v;
-            }
-        }
-        let Some(s_inv) = super::dense::spd_inverse(&s, p) else {
-            return 0.0;
-        };
-        let mut total = 0.0;
-        for i in 0..p {
-            for j in 0..p {
-                let w: f64 = (0..r)
-                    .map(|m| lambda[m] * pb[i * r + m] * pb[j * r + m])
-                    .sum();
-                total += s_inv[i * p + j] * w;
-            }
-        }
-        total.max(0.0)
+        a_reduction_from(problem.rows.block(b), pb, &problem.prior_var)
     }
 }
 
