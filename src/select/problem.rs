@@ -75,30 +75,8 @@ impl Problem {
             assert_eq!(b.h.ncols(), n_modes, "all blocks share the mode count");
             assert_eq!(b.noise_var.len(), b.n_rows(), "one noise variance per row");
             for row in 0..b.n_rows() {
-                let var = b.noise_var[row];
-                if !(var.is_finite() && var > 0.0) {
-                    let (candidate, kind) = name(b);
-                    return Err(SelectError::BadNoise {
-                        candidate,
-                        kind,
-                        row,
-                        value: var,
-                    });
-                }
-                let w = 1.0 / var.sqrt();
-                for mode in 0..n_modes {
-                    let v = b.h[(row, mode)];
-                    if !v.is_finite() {
-                        let (candidate, kind) = name(b);
-                        return Err(SelectError::NonFiniteRows {
-                            candidate,
-                            kind,
-                            row,
-                            mode,
-                        });
-                    }
-                    data.push(v * w);
-                }
+                let h_row = (0..n_modes).map(|mode| b.h[(row, mode)]);
+                push_noise_whitened_row(&mut data, h_row, b.noise_var[row], row, || name(b))?;
             }
             rows_per_block.push(b.n_rows());
         }
@@ -144,29 +122,10 @@ impl Problem {
         for b in 0..n_blocks {
             let (first, last) = (packed.row_start[b], packed.row_start[b + 1]);
             for (row, global) in (first..last).enumerate() {
-                let var = packed.noise_var[global];
-                if !(var.is_finite() && var > 0.0) {
-                    let (candidate, kind) = name(b);
-                    return Err(SelectError::BadNoise {
-                        candidate,
-                        kind,
-                        row,
-                        value: var,
-                    });
-                }
-                let w = 1.0 / var.sqrt();
-                for (mode, &v) in packed.h[global * r..(global + 1) * r].iter().enumerate() {
-                    if !v.is_finite() {
-                        let (candidate, kind) = name(b);
-                        return Err(SelectError::NonFiniteRows {
-                            candidate,
-                            kind,
-                            row,
-                            mode,
-                        });
-                    }
-                    data.push(v * w);
-                }
+                let h_row = packed.h[global * r..(global + 1) * r].iter().copied();
+                push_noise_whitened_row(&mut data, h_row, packed.noise_var[global], row, || {
+                    name(b)
+                })?;
             }
             rows_per_block.push(last - first);
         }
@@ -293,4 +252,38 @@ impl Problem {
         (0..self.n_blocks())
             .find(|&b| self.block_candidate[b] == candidate_idx && self.block_kind[b] == kind_idx)
     }
+}
+
+/// Checks one measurement row (finite `h`, finite positive noise variance) and appends it
+/// multiplied by `R^{-1/2}`; `name` gives the (candidate, kind) for the error.
+fn push_noise_whitened_row(
+    data: &mut Vec<f64>,
+    h_row: impl Iterator<Item = f64>,
+    var: f64,
+    row: usize,
+    name: impl Fn() -> (String, String),
+) -> Result<(), SelectError> {
+    if !(var.is_finite() && var > 0.0) {
+        let (candidate, kind) = name();
+        return Err(SelectError::BadNoise {
+            candidate,
+            kind,
+            row,
+            value: var,
+        });
+    }
+    let w = 1.0 / var.sqrt();
+    for (mode, v) in h_row.enumerate() {
+        if !v.is_finite() {
+            let (candidate, kind) = name();
+            return Err(SelectError::NonFiniteRows {
+                candidate,
+                kind,
+                row,
+                mode,
+            });
+        }
+        data.push(v * w);
+    }
+    Ok(())
 }
