@@ -86,6 +86,13 @@ fn main() {
         t.elapsed().as_secs_f64()
     );
 
+    // `--qr-only`: time the pivoted QR alone (for profiling it).
+    if std::env::args().any(|a| a == "--qr-only") {
+        let (w_qr, c_qr, _) = timed(|| lazy_pivoted_qr(&problem.rows, &[], K, |_| true));
+        println!("RESULT qr_seconds {w_qr:.4}");
+        println!("RESULT qr_cpu_seconds {c_qr:.4}");
+        return;
+    }
     // One run each, like the reference (the cores are shared; see docs/performance.md).
     let (w_greedy, c_greedy, greedy) =
         timed(|| greedy_order(&problem, &feas, Criterion::D, Limit::Count(K)));

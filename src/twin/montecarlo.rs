@@ -23,7 +23,7 @@ use super::kalman::{
     kalman_gains, oi_gain, run_with_gains, static_gains, Divergence, GainSequence, NoisyReadings,
 };
 use super::metrics::{field_rmse, Summary};
-use super::nudge::{nudging_gain, tune_strength};
+use super::nudge::{crossing, nudging_gain, tune_strength};
 use super::schedule::{Schedule, SensorRows};
 use super::{
     FilterKind, ModelSettings, NudgeGain, ReducedModel, RunSettings, TimeSplit, TwinError,
@@ -376,7 +376,7 @@ pub(super) fn shared_for<'a>(
         FilterKind::Nudge => {
             let strength = match settings.nudge_gain {
                 NudgeGain::Fixed(g) => g,
-                NudgeGain::Tuned => tune_nudging(prep, settings)?,
+                NudgeGain::Tuned => tune_nudging(prep, settings)?.strength,
             };
             nudge_strength = Some(strength);
             Some(static_gains(n_modes, &schedule, "nudging", |rows| {
@@ -582,26 +582,51 @@ pub const N_TUNING_RUNS: usize = RUN_BLOCK;
 /// First run index of the tuning streams (far above any scoring run).
 const FIRST_TUNING_RUN: usize = (u32::MAX / 2) as usize;
 
-/// Time-mean field RMSE on the **training** span of nudging at `strength` (the objective the
-/// tuned strength minimises); `INFINITY` when a run diverges. The training span is cut into
-/// windows as long as the test span (at most 8); in each, [`N_TUNING_RUNS`] runs start from
-/// the window's first state plus the background perturbation and read its truth through the
-/// layout's sensors with fresh noise, as the scoring runs do on the test span.
+/// Score on the **training** span of nudging at `strength` (the objective the tuned strength
+/// minimises): the mean over runs of the time-mean field RMSE divided by the free run's from
+/// the same start, so a calm window and a stormy one weigh alike (the error a noisy reading
+/// adds is the same in both, the error it removes is not); `INFINITY` when a run diverges.
 pub fn nudging_training_score(
     prep: &Prepared,
     settings: &RunSettings,
     strength: f64,
 ) -> Result<f64, TwinError> {
+    Ok(mean(&nudging_window_scores(prep, settings, strength)?))
+}
+
+/// [`nudging_training_score`] per training window (mean over the window's runs). Windows as
+/// long as the test span (so the objective weighs the start-up from the background as the
+/// scoring runs do) start at up to [`MAX_TUNING_WINDOWS`] points spread evenly over the
+/// training span; in each, [`N_TUNING_RUNS`] runs start from the window's first state plus the
+/// background perturbation and read its truth through the layout's sensors with fresh noise,
+/// as the scoring runs do on the test span. A window with a diverged run scores `INFINITY`.
+pub fn nudging_window_scores(
+    prep: &Prepared,
+    settings: &RunSettings,
+    strength: f64,
+) -> Result<Vec<f64>, TwinError> {
+    Ok(nudging_tuning_runs(prep, settings, strength)?
+        .iter()
+        .map(|runs| mean(runs))
+        .collect())
+}
+
+/// Ratio to the free run of every tuning run, per training window (see
+/// [`nudging_window_scores`]); a window with a diverged run holds one `INFINITY`.
+fn nudging_tuning_runs(
+    prep: &Prepared,
+    settings: &RunSettings,
+    strength: f64,
+) -> Result<Vec<Vec<f64>>, TwinError> {
     let fixed = RunSettings {
         nudge_gain: NudgeGain::Fixed(strength),
         ..settings.clone()
     };
     let (mut shared, _) = shared_for(prep, &fixed)?;
-    // Windows of the training span as long as the test span (so the objective weighs the
-    // start-up from the background as the scoring runs do), non-overlapping, from its start.
     let n_train = prep.split.n_train;
     let len = prep.split.n_test.min(n_train);
-    let n_windows = (n_train / len).clamp(1, 8);
+    let slack = n_train - len;
+    let n_windows = (slack + 1).min(MAX_TUNING_WINDOWS);
     shared.schedule = Schedule::new(&prep.case.rows, prep.case.dt_s, len, settings.every)?;
     let h = prep.case.rows.h.as_ref();
     let noise_var = shared.noise_var.clone();
@@ -611,33 +636,76 @@ pub fn nudging_training_score(
         "nudging",
         |rows| nudging_gain(h, &noise_var, rows, strength),
     ));
-    let mut total = 0.0;
-    let mut count = 0usize;
+    let mut scores = Vec::with_capacity(n_windows);
     for w in 0..n_windows {
-        let span = prep.span(w * len, len);
+        let start = if n_windows > 1 {
+            w * slack / (n_windows - 1)
+        } else {
+            0
+        };
+        let span = prep.span(start, len);
         let fused = fused_ops(&shared, &span);
         let first = FIRST_TUNING_RUN + w * N_TUNING_RUNS;
         let runs = gain_block(&shared, &span, fused.as_ref(), first..first + N_TUNING_RUNS);
-        for r in &runs {
-            if r.divergence.is_some() || !r.mean_rmse.is_finite() {
-                return Ok(f64::INFINITY);
-            }
-            total += r.mean_rmse;
-            count += 1;
-        }
+        let diverged = runs
+            .iter()
+            .any(|r| r.divergence.is_some() || !r.ratio_to_free.is_finite());
+        scores.push(if diverged {
+            vec![f64::INFINITY]
+        } else {
+            runs.iter().map(|r| r.ratio_to_free).collect()
+        });
     }
-    Ok(total / count as f64)
+    Ok(scores)
 }
 
-/// Nudging strength minimising [`nudging_training_score`]: the best of a log-spaced grid over
-/// [`super::nudge::MIN_TUNED_STRENGTH`, 1], refined by Brent's method in log γ between the grid
-/// neighbours of the best point; the refined value is kept only when it scores better.
-fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<f64, TwinError> {
-    let grid = super::nudge::strength_grid();
-    let mut scores = Vec::with_capacity(grid.len());
-    for &g in &grid {
-        scores.push(nudging_training_score(prep, settings, g)?);
+/// Most training windows the nudging strength is tuned on.
+pub const MAX_TUNING_WINDOWS: usize = 8;
+
+fn mean(values: &[f64]) -> f64 {
+    values.iter().sum::<f64>() / values.len().max(1) as f64
+}
+
+/// Standard error of the mean of `values` (0 for fewer than two or any not finite).
+fn standard_error(values: &[f64]) -> f64 {
+    let n = values.len();
+    if n < 2 || values.iter().any(|v| !v.is_finite()) {
+        return 0.0;
     }
+    let m = mean(values);
+    let var = values.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / (n - 1) as f64;
+    (var / n as f64).sqrt()
+}
+
+/// How the nudging strength was tuned: the minimiser of the training score, and the strength
+/// used — the weakest whose score lies within one standard error (over the training windows)
+/// of that minimum.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct NudgeTuning {
+    pub best_strength: f64,
+    pub best_score: f64,
+    pub standard_error: f64,
+    pub strength: f64,
+    pub score: f64,
+}
+
+/// Tunes the nudging strength on the training span. First the minimiser of
+/// [`nudging_training_score`]: the best of a log-spaced grid over
+/// [`super::nudge::MIN_TUNED_STRENGTH`, 1], refined by Brent's method in log γ between its
+/// grid neighbours (kept only when it scores better). Then the one-standard-error rule
+/// (Breiman, Friedman, Olshen & Stone 1984, *Classification and Regression Trees*, §3.4.3;
+/// Hastie, Tibshirani & Friedman 2009, *The Elements of Statistical Learning*, §7.10): the
+/// weakest strength whose score is within one standard error of the minimum, found by Brent's
+/// root finder in log γ. Stronger nudging pulls harder on noisy readings, and the training
+/// windows cannot show every calm spell the test span may hold, where that pull costs more
+/// than it gains; the rule leans towards the weaker gain the training data cannot tell apart.
+pub fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<NudgeTuning, TwinError> {
+    let grid = super::nudge::strength_grid();
+    let mut windows = Vec::with_capacity(grid.len());
+    for &g in &grid {
+        windows.push(nudging_window_scores(prep, settings, g)?);
+    }
+    let scores: Vec<f64> = windows.iter().map(|w| mean(w)).collect();
     let best = (0..grid.len())
         .min_by(|&i, &j| scores[i].total_cmp(&scores[j]).then(i.cmp(&j)))
         .unwrap_or(0);
@@ -647,11 +715,53 @@ fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<f64, TwinErro
         nudging_training_score(prep, settings, log_g.exp()).unwrap_or(f64::INFINITY)
     };
     let refined = tune_strength(&objective, lo.ln(), hi.ln())?.exp();
-    let refined_score = nudging_training_score(prep, settings, refined)?;
-    Ok(if refined_score < scores[best] {
-        refined
+    let refined_runs = nudging_tuning_runs(prep, settings, refined)?;
+    let refined_score = mean(&refined_runs.iter().map(|w| mean(w)).collect::<Vec<_>>());
+    let (best_strength, best_runs) = if refined_score < scores[best] {
+        (refined, refined_runs)
     } else {
-        grid[best]
+        (grid[best], nudging_tuning_runs(prep, settings, grid[best])?)
+    };
+    let best_windows: Vec<f64> = best_runs.iter().map(|w| mean(w)).collect();
+    let best_score = mean(&best_windows);
+    // Over the windows when there are several (their spread holds the change of conditions
+    // along the record), else over the runs of the one window.
+    let se = match best_runs.as_slice() {
+        [only] => standard_error(only),
+        _ => standard_error(&best_windows),
+    };
+    let threshold = best_score + se;
+    // The weakest grid strength inside the band; the crossing lies between it and the grid
+    // strength below (or at the lower end of the grid).
+    let inside = (0..grid.len())
+        .find(|&i| grid[i] <= best_strength && scores[i] <= threshold)
+        .unwrap_or(best);
+    let (mut strength, mut score) = if grid[inside] <= best_strength {
+        (grid[inside], scores[inside])
+    } else {
+        (best_strength, best_score)
+    };
+    if inside > 0 && se > 0.0 {
+        let below = grid[inside - 1];
+        let above = strength;
+        let excess = |log_g: f64| -> f64 {
+            nudging_training_score(prep, settings, log_g.exp()).unwrap_or(f64::INFINITY) - threshold
+        };
+        // The crossing to Brent's tolerance (its score may exceed the band by that much).
+        if let Some(root) = crossing(&excess, below.ln(), above.ln())? {
+            let g = root.exp();
+            let s = nudging_training_score(prep, settings, g)?;
+            if s.is_finite() {
+                (strength, score) = (g, s);
+            }
+        }
+    }
+    Ok(NudgeTuning {
+        best_strength,
+        best_score,
+        standard_error: se,
+        strength,
+        score,
     })
 }
 

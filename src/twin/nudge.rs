@@ -4,12 +4,14 @@
 //! pulled towards the readings by `a ← a + γ α Hᵀ R⁻¹ (z − offset − H a)`, a gradient step on the
 //! reading misfit. `α = 1 / λ_max(Hᵀ R⁻¹ H)` makes γ ∈ (0, 1] a fraction of the largest stable
 //! step, so poorly observed modes get small corrections instead of amplified noise. The strength
-//! γ is set, or tuned on the training span: the best of a log-spaced grid, refined by Brent's
-//! method (argmin `BrentOpt`; Brent 1973) in log γ, minimising the time-mean field RMSE of
-//! nudged runs there.
+//! γ is set, or tuned on the training span (`montecarlo::tune_nudging`): the minimiser of the
+//! nudged runs' error relative to the free run over several training windows (a log-spaced grid
+//! refined by Brent's method, argmin `BrentOpt`; Brent 1973), then the weakest γ within one
+//! standard error of that minimum (argmin `BrentRoot`), since a gain too strong for a calm spell
+//! costs more than one slightly too weak.
 
 use argmin::core::{CostFunction, Error as ArgminError, Executor, State};
-use argmin::solver::brent::BrentOpt;
+use argmin::solver::brent::{BrentOpt, BrentRoot};
 use faer::{Mat, MatRef, Side};
 
 use super::TwinError;
@@ -93,6 +95,39 @@ pub fn tune_strength(
     Ok(best.clamp(lo, hi))
 }
 
+struct Excess<'a> {
+    f: &'a (dyn Fn(f64) -> f64 + Sync),
+}
+
+impl CostFunction for Excess<'_> {
+    type Param = f64;
+    type Output = f64;
+
+    fn cost(&self, x: &f64) -> Result<f64, ArgminError> {
+        Ok((self.f)(*x))
+    }
+}
+
+/// A root of `f` in `[lo, hi]` by Brent's method (argmin `BrentRoot`; Brent 1973), tolerance
+/// 1e-3 on the argument; `None` unless `f(lo)` and `f(hi)` are finite and of opposite signs.
+pub fn crossing(
+    f: &(dyn Fn(f64) -> f64 + Sync),
+    lo: f64,
+    hi: f64,
+) -> Result<Option<f64>, TwinError> {
+    let (f_lo, f_hi) = (f(lo), f(hi));
+    if !(f_lo.is_finite() && f_hi.is_finite()) || f_lo * f_hi > 0.0 {
+        return Ok(None);
+    }
+    let solver = BrentRoot::new(lo, hi, 1e-3);
+    let result = Executor::new(Excess { f }, solver)
+        .configure(|state| state.max_iters(40))
+        .run()
+        .map_err(|e| TwinError::Numerical(format!("tuning the nudging strength: {e}")))?;
+    // The last iterate: "best" in argmin's state means lowest cost, not closest to zero.
+    Ok(result.state().get_param().copied())
+}
+
 #[cfg(test)]
 #[allow(clippy::unwrap_used)]
 mod tests {
@@ -111,6 +146,14 @@ mod tests {
         moduli.sort_by(f64::total_cmp);
         assert!(moduli[0].abs() < 1e-12, "{moduli:?}");
         assert!(moduli[1] < 1.0);
+    }
+
+    #[test]
+    fn crossing_finds_the_root_of_a_line_and_refuses_a_bracket_without_one() {
+        let f = |x: f64| 2.0 * x - 1.0;
+        let root = crossing(&f, -3.0, 4.0).unwrap().unwrap();
+        assert!((root - 0.5).abs() < 2e-3, "{root}");
+        assert_eq!(crossing(&f, 1.0, 4.0).unwrap(), None);
     }
 
     #[test]

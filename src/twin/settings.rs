@@ -63,7 +63,8 @@ impl ModelKind {
 pub enum NudgeGain {
     /// Fixed strength γ in (0, 1]: the fraction of the least-squares innovation applied per reading.
     Fixed(f64),
-    /// γ minimising the time-mean field RMSE on the training span (Brent's method, argmin).
+    /// γ tuned on the training span: the weakest within one standard error of the minimum of
+    /// the nudged-to-free error ratio (see `montecarlo::tune_nudging`).
     Tuned,
 }
 
