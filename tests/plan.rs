@@ -488,7 +488,7 @@ fn plan_with_a_budget_ranks_at_that_budget_and_shows_the_currency() {
         .map(|r| r["setting"].parse().unwrap())
         .collect();
     assert!(budgets.contains(&budget), "budget cells at {budgets:?}");
-    assert!(budgets.contains(&(budget / 2.0)), "and at fractions of it");
+    assert!(budgets.len() >= 4, "and at lower levels: {budgets:?}");
     assert!(budgets.iter().all(|&b| b <= budget));
     // The fixture's site.toml says currency = "EUR".
     assert!(stdout.contains("cum. cost (EUR)"), "{stdout}");

@@ -5,9 +5,10 @@
 //! the report draws (error against time for the recommended layout, that grid baseline and the
 //! free run; the cost of each single lost sensor of the recommended layout).
 //!
-//! With a budget goal B the budget study ranks at ¼, ½, ¾ and all of B, so "the lowest error
-//! within B" is chosen among layouts ranked for B itself; otherwise it spreads over the cost
-//! of the largest layout of the count study.
+//! The budget study ranks at eight budgets in equal ratios from the cheapest sensor up to the
+//! budget goal B, so "the lowest error within B" is chosen among layouts ranked for B itself,
+//! or, for a target error, up to the cost of the largest layout of the count study, so the
+//! cheapest layout meeting the target is looked for among many cheap sensors too.
 //!
 //! Both phases go through [`run_cells`] with the same journal, so an interrupted plan resumes
 //! with identical results.

@@ -49,12 +49,29 @@ pub fn count_settings(max_count: usize) -> Vec<f64> {
     (1..=max_count).map(|k| k as f64).collect()
 }
 
-/// Budgets a quarter, half, three quarters and all of `top` (the user's budget, or the cost of
-/// the largest layout of the count study), never below the cheapest sensor.
+/// Number of budget levels of the budget study.
+pub const N_BUDGET_LEVELS: usize = 8;
+
+/// Budgets from the cheapest sensor to `top` (the user's budget, or the cost of the largest
+/// layout of the count study) in equal ratios, so cheap layouts of many low-cost sensors are
+/// studied as finely as expensive ones: the cheapest layout meeting a target is often far
+/// below the largest layout's cost. Levels between the ends are rounded to three significant
+/// figures (a budget a person would write); `top` is kept exactly.
 pub fn budget_settings(top: f64, cheapest: f64) -> Vec<f64> {
-    let mut budgets: Vec<f64> = [0.25, 0.5, 0.75, 1.0]
-        .iter()
-        .map(|f| (f * top).max(cheapest))
+    if !(top.is_finite() && cheapest.is_finite() && cheapest > 0.0) || top <= cheapest {
+        return vec![top.max(cheapest)];
+    }
+    let ratio = top / cheapest;
+    let last = N_BUDGET_LEVELS - 1;
+    let mut budgets: Vec<f64> = (0..=last)
+        .map(|i| {
+            if i == last {
+                return top;
+            }
+            let b = cheapest * ratio.powf(i as f64 / last as f64);
+            let unit = 10f64.powf(b.log10().floor() - 2.0);
+            ((b / unit).round() * unit).clamp(cheapest, top)
+        })
         .collect();
     budgets.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs().max(1.0));
     budgets
@@ -132,11 +149,21 @@ mod tests {
     }
 
     #[test]
-    fn budgets_never_fall_below_the_cheapest_sensor() {
+    fn budgets_run_from_the_cheapest_sensor_to_the_top_in_equal_ratios() {
+        // 1000 → 128 000: a ratio of 2 per level.
         assert_eq!(
-            budget_settings(1000.0, 400.0),
-            vec![400.0, 500.0, 750.0, 1000.0]
+            budget_settings(128_000.0, 1000.0),
+            vec![1000.0, 2000.0, 4000.0, 8000.0, 16000.0, 32000.0, 64000.0, 128_000.0]
         );
-        assert_eq!(budget_settings(1000.0, 600.0), vec![600.0, 750.0, 1000.0]);
+        // Rounded to three significant figures inside, the top kept exactly.
+        let b = budget_settings(376_321.5, 2100.0);
+        assert_eq!(b.len(), N_BUDGET_LEVELS);
+        assert_eq!(b[0], 2100.0);
+        assert_eq!(b[1], 4410.0);
+        assert_eq!(b[N_BUDGET_LEVELS - 1], 376_321.5);
+        assert!(b.windows(2).all(|w| w[0] < w[1]), "{b:?}");
+        // Levels closer than the rounding collapse; a top below the cheapest sensor is one level.
+        assert_eq!(budget_settings(1001.0, 1000.0), vec![1000.0, 1001.0]);
+        assert_eq!(budget_settings(500.0, 600.0), vec![600.0]);
     }
 }
