@@ -138,6 +138,12 @@ pub fn hash_file(hasher: &mut Hasher, path: &Path) -> Result<(), IoError> {
     }
 }
 
+/// Revision of the numbers a journal holds. Bump it with any change that alters a scored or
+/// ranked number without a version bump (a filter, a tuning rule, a study's settings), so an
+/// old journal is never resumed into a new run. 2: nudging tuned with the one-standard-error
+/// rule; budget study at eight levels.
+pub const RESULTS_REVISION: u32 = 2;
+
 /// Digest of every input of `site`: the text of `site.toml`, the loaded site (every value
 /// read from the files it names), the snapshot or basis files in full, and `options` (the
 /// caller's settings, as text). Two runs with equal digests ask the same question.
@@ -145,6 +151,7 @@ pub fn site_inputs_digest(site: &Site, options: &str) -> Result<u64, IoError> {
     use fmt::Write as _;
     let mut hasher = Hasher::new();
     hasher.field(env!("CARGO_PKG_VERSION").as_bytes());
+    hasher.field(&RESULTS_REVISION.to_le_bytes());
     let toml = site.root.join("site.toml");
     if toml.is_file() {
         hash_file(&mut hasher, &toml)?;
