@@ -406,7 +406,20 @@ fn top_outside(score: &[f64], inside: &[bool], n: usize) -> Vec<usize> {
 /// Certified upper bound on log det J for layouts of the kept sensors plus new blocks within
 /// `limit` (static admissibility from `feas`).
 pub fn d_upper_bound(problem: &Problem, feas: &Feasibility, limit: Limit) -> BoundReport {
-    bound_with_working_set(problem, feas, limit, None)
+    bound_with_working_set(problem, feas, limit, None, &[])
+}
+
+/// [`d_upper_bound`] started from a layout within the limit (`layout`: its new blocks). Its
+/// indicator is a point of the polytope, so the certificate there is a bound before any Newton
+/// step — a tight one when the layout is near-optimal, as greedy's is — and its blocks seed the
+/// working set and the first interior point. The bound is valid whatever the layout.
+pub fn d_upper_bound_near(
+    problem: &Problem,
+    feas: &Feasibility,
+    limit: Limit,
+    layout: &[usize],
+) -> BoundReport {
+    bound_with_working_set(problem, feas, limit, None, layout)
 }
 
 /// [`d_upper_bound`] with the first working set's size forced (tests compare sizes).
@@ -415,6 +428,7 @@ pub(crate) fn bound_with_working_set(
     feas: &Feasibility,
     limit: Limit,
     first_size: Option<usize>,
+    hint: &[usize],
 ) -> BoundReport {
     let r = problem.n_modes();
     let offset = problem.log_det_prior_inv;
@@ -545,9 +559,48 @@ pub(crate) fn bound_with_working_set(
         let w: f64 = act.iter().map(|&i| relax.weight[i]).sum();
         vec![cap / w; act.len()]
     };
-    let mut z = uniform(&act);
     let mut best_bound = f64::INFINITY;
     let mut best_f = f64::NEG_INFINITY;
+    // The hinted layout: its variables (fixed blocks are already in the base) join the working
+    // set, and its indicator gives a first certificate.
+    let var_of: std::collections::HashMap<usize, usize> = relax
+        .vars
+        .iter()
+        .enumerate()
+        .map(|(i, &b)| (b, i))
+        .collect();
+    let hinted: Vec<usize> = hint.iter().filter_map(|b| var_of.get(b).copied()).collect();
+    let hint_weight: f64 = hinted.iter().map(|&i| relax.weight[i]).sum();
+    if !hinted.is_empty() && hint_weight <= cap * (1.0 + 1e-12) {
+        for &i in &hinted {
+            if !inside[i] {
+                inside[i] = true;
+                act.push(i);
+            }
+        }
+        let z_hint: Vec<f64> = act
+            .iter()
+            .map(|i| if hinted.contains(i) { 1.0 } else { 0.0 })
+            .collect();
+        if let Some((f, l)) = relax.factor(&act, &z_hint) {
+            g = gradient_pass(problem, &relax.vars, &inverse_factor_transposed(&l, r));
+            n_passes += 1;
+            let gz: f64 = hinted.iter().map(|&i| g[i]).sum();
+            let (lmo, _) = relax.linear_max(&g, count);
+            best_bound = f + lmo - gz;
+            best_f = f;
+        }
+    }
+    // First interior point: mostly the hinted layout when there is one, else uniform.
+    let act_weight: f64 = act.iter().map(|&i| relax.weight[i]).sum();
+    let fill = (cap - 0.9 * hint_weight) / act_weight;
+    let mut z = if !hinted.is_empty() && best_f.is_finite() && fill > 0.0 && 0.9 + fill < 1.0 {
+        act.iter()
+            .map(|i| fill + if hinted.contains(i) { 0.9 } else { 0.0 })
+            .collect()
+    } else {
+        uniform(&act)
+    };
     let mut n_iterations = 0;
     let mut converged = false;
     for _ in 0..MAX_ROUNDS {
@@ -660,8 +713,8 @@ mod tests {
             let p = problem(3, 400, 6, two_rows);
             let c = Constraints::default();
             let feas = Feasibility::new(&p, &c).unwrap();
-            let small = bound_with_working_set(&p, &feas, limit, Some(5));
-            let full = bound_with_working_set(&p, &feas, limit, Some(p.n_blocks()));
+            let small = bound_with_working_set(&p, &feas, limit, Some(5), &[]);
+            let full = bound_with_working_set(&p, &feas, limit, Some(p.n_blocks()), &[]);
             assert!(full.converged, "{full:?}");
             assert!(small.n_passes > 2, "column generation ran: {small:?}");
             assert!(full.bound - full.relaxed_value <= 2e-4, "{full:?}");
@@ -672,6 +725,38 @@ mod tests {
             );
             assert!(small.relaxed_value <= full.bound + 1e-9);
             assert!(full.relaxed_value <= small.bound + 1e-9);
+        }
+    }
+
+    /// Starting from a layout changes the route, not the answer: from greedy's layout the
+    /// bound reaches the same relaxed maximum to the tolerance, stays above greedy's value and
+    /// the un-hinted relaxed maximum, and a layout that breaks the limit is ignored.
+    #[test]
+    fn starting_from_a_layout_gives_the_same_bound() {
+        use crate::select::{evaluate_set, greedy_order, Criterion};
+        for (two_rows, limit) in [
+            (false, Limit::Count(4)),
+            (true, Limit::Count(6)),
+            (true, Limit::Budget(9.0)),
+        ] {
+            let p = problem(3, 400, 6, two_rows);
+            let c = Constraints::default();
+            let feas = Feasibility::new(&p, &c).unwrap();
+            let greedy = greedy_order(&p, &feas, Criterion::D, limit);
+            let plain = d_upper_bound(&p, &feas, limit);
+            let near = d_upper_bound_near(&p, &feas, limit, &greedy);
+            let d = evaluate_set(&p, &greedy, Criterion::D);
+            assert!(near.converged, "{near:?}");
+            assert!(near.bound >= d - 1e-9, "{near:?} below greedy {d}");
+            assert!(near.relaxed_value >= d - 1e-9, "{near:?}");
+            assert!(
+                (near.bound - plain.bound).abs() <= 1e-3,
+                "{near:?} {plain:?}"
+            );
+            assert!(near.bound >= plain.relaxed_value - 1e-9);
+            let everything: Vec<usize> = (0..p.n_blocks()).collect();
+            let ignored = d_upper_bound_near(&p, &feas, limit, &everything);
+            assert!((ignored.bound - plain.bound).abs() <= 1e-3, "{ignored:?}");
         }
     }
 

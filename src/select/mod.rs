@@ -30,7 +30,7 @@ mod rank;
 mod rows;
 mod site_problem;
 
-pub use bound::{d_upper_bound, BoundReport};
+pub use bound::{d_upper_bound, d_upper_bound_near, BoundReport};
 pub use constraints::{CandidatePlace, Constraints, Feasibility};
 pub use criterion::{evaluate_set, Criterion, InfoState};
 pub use greedy::{greedy_order, Limit};

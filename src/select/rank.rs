@@ -4,7 +4,7 @@
 //! dispatches and checks the request against the problem (count, budget, admissibility).
 
 use super::baseline::{grid_layout, random_best};
-use super::bound::{d_upper_bound, BoundReport};
+use super::bound::{d_upper_bound_near, BoundReport};
 use super::constraints::{Constraints, Feasibility};
 use super::criterion::{evaluate_set, Criterion, InfoState};
 use super::exchange::exchange;
@@ -229,7 +229,7 @@ pub fn rank(problem: &Problem, options: &RankOptions) -> Result<Ranking, SelectE
     let mut all = feas.kept_blocks.clone();
     all.extend_from_slice(&order);
     let d_value = evaluate_set(problem, &all, Criterion::D);
-    let bound = d_upper_bound(problem, &feas, limit);
+    let bound = d_upper_bound_near(problem, &feas, limit, &order);
     if !bound.converged {
         warnings.push(format!(
             "note: the optimality bound did not fully converge ({} Newton steps, {} passes over the candidates, working set of {}); it is still a valid upper bound, the gap may be overstated",
