@@ -26,6 +26,7 @@ mod lazy;
 mod pending;
 mod problem;
 mod qr;
+mod qr_pool;
 mod rank;
 mod rows;
 mod site_problem;

@@ -34,26 +34,34 @@ pub struct QrOrder {
 }
 
 /// Relative size below which a residual counts as round-off.
-const RANK_TOL: f64 = 1e-12;
+pub(super) const RANK_TOL: f64 = 1e-12;
 /// A refreshed squared norm below this fraction of the original is recomputed explicitly.
-const RECOMPUTE_FRACTION: f64 = 1e-6;
+pub(super) const RECOMPUTE_FRACTION: f64 = 1e-6;
 
-struct Basis {
-    n_modes: usize,
-    q: Vec<f64>,
+/// The orthonormal directions of the rows chosen so far (`Q`, one row-major column each).
+pub(super) struct Basis {
+    pub(super) n_modes: usize,
+    pub(super) q: Vec<f64>,
 }
 
 impl Basis {
-    fn n_q(&self) -> usize {
+    pub(super) fn new(n_modes: usize) -> Self {
+        Basis {
+            n_modes,
+            q: Vec::new(),
+        }
+    }
+
+    pub(super) fn n_q(&self) -> usize {
         self.q.len() / self.n_modes
     }
 
-    fn q_col(&self, j: usize) -> &[f64] {
+    pub(super) fn q_col(&self, j: usize) -> &[f64] {
         &self.q[j * self.n_modes..(j + 1) * self.n_modes]
     }
 
     /// `v ← (I − Q Qᵀ)² v`: two Gram–Schmidt passes ("twice is enough", Giraud et al. 2005).
-    fn project_out(&self, v: &mut [f64]) {
+    pub(super) fn project_out(&self, v: &mut [f64]) {
         for _ in 0..2 {
             for q in self.q.chunks_exact(self.n_modes) {
                 let c = dot(q, v);
@@ -65,7 +73,7 @@ impl Basis {
     }
 
     /// Appends the orthonormalised rows of a block.
-    fn absorb(&mut self, block: &[f64]) {
+    pub(super) fn absorb(&mut self, block: &[f64]) {
         for row in block.chunks_exact(self.n_modes) {
             let mut v = row.to_vec();
             self.project_out(&mut v);
@@ -157,17 +165,30 @@ const PARALLEL_MIN: usize = 2048;
 /// Lazy group-pivoted QR: up to `n_pick` blocks after the blocks in `start` (already chosen,
 /// projected out first). `accept(b)` is asked when `b` is the pivot; returning false drops it
 /// for good (constraints, budget). Blocks never offered to `accept` are never chosen.
+/// Single-row candidates go through the pool and sweep search of `qr_pool.rs`, blocks of
+/// several rows through the lazy search below; both give the pivots of the eager algorithm.
 pub fn lazy_pivoted_qr(
+    rows: &CandidateRows,
+    start: &[usize],
+    n_pick: usize,
+    accept: impl FnMut(usize) -> bool,
+) -> QrOrder {
+    if rows.all_single() {
+        super::qr_pool::pooled_pivoted_qr(rows, start, n_pick, accept)
+    } else {
+        lazy_pivoted_qr_by_search(rows, start, n_pick, accept)
+    }
+}
+
+/// [`lazy_pivoted_qr`] by the lazy arg-max over stale norms (any block sizes).
+pub(super) fn lazy_pivoted_qr_by_search(
     rows: &CandidateRows,
     start: &[usize],
     n_pick: usize,
     mut accept: impl FnMut(usize) -> bool,
 ) -> QrOrder {
     let r = rows.n_modes();
-    let mut basis = Basis {
-        n_modes: r,
-        q: Vec::new(),
-    };
+    let mut basis = Basis::new(r);
     for &b in start {
         basis.absorb(rows.block(b));
     }

@@ -91,6 +91,11 @@ impl CandidateRows {
         &self.data[r.start * self.n_modes..r.end * self.n_modes]
     }
 
+    /// Rows `first..first + n_rows`, row-major.
+    pub fn rows_slice(&self, first: usize, n_rows: usize) -> &[f64] {
+        &self.data[first * self.n_modes..(first + n_rows) * self.n_modes]
+    }
+
     pub fn row(&self, row_idx: usize) -> &[f64] {
         &self.data[row_idx * self.n_modes..(row_idx + 1) * self.n_modes]
     }
