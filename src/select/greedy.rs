@@ -34,7 +34,7 @@ use super::constraints::Feasibility;
 use super::criterion::{a_reduction_from, evaluate_set, Criterion, InfoState};
 use super::dense::{symmetric_eigen, symmetric_min_eigenvalue};
 use super::lazy::{lazy_argmax, Refresh};
-use super::pending::subtract_pending_squares;
+use super::pool::PooledArgmax;
 use super::problem::Problem;
 use super::rows::dot;
 
@@ -197,18 +197,6 @@ impl Refresh for GainSource<'_> {
     fn refresh(&mut self, items: &[usize], threshold: f64, out: &mut [f64]) {
         let (problem, state) = (self.problem, self.state);
         let lazy = &*self.lazy;
-        if problem.rows.all_single() {
-            let stamps: Vec<usize> = items.iter().map(|&b| lazy.stamp[b]).collect();
-            let current: Vec<f64> = items.iter().map(|&b| lazy.s[b]).collect();
-            let values =
-                subtract_pending_squares(&problem.rows, state.u_all(), items, &stamps, &current);
-            for ((&b, v), o) in items.iter().zip(values).zip(out.iter_mut()) {
-                self.lazy.s[b] = v;
-                self.lazy.stamp[b] = state.n_u();
-                *o = self.key(LazyGains::gain_of(&[v]), b);
-            }
-            return;
-        }
         let single = items
             .iter()
             .all(|&b| lazy.s_start[b + 1] - lazy.s_start[b] == 1);
@@ -271,6 +259,9 @@ fn lazy_greedy_d(
     limit: Limit,
     per_cost: bool,
 ) -> Vec<usize> {
+    if problem.rows.all_single() {
+        return pooled_greedy_d(problem, feas, start, limit, per_cost);
+    }
     let mut feas = feas.with_chosen(start);
     let mut state = kept_state(problem, &feas, start, false);
     let mut lazy = LazyGains::new(problem);
@@ -306,6 +297,54 @@ fn lazy_greedy_d(
             break;
         };
         bound[b] = f64::NEG_INFINITY;
+        if !feas.can_add(b) || problem.block_cost[b] > remaining {
+            continue; // constraints and the remaining budget only tighten: drop for good
+        }
+        state.add_block(problem.rows.block(b));
+        feas.add(b);
+        remaining -= problem.block_cost[b];
+        order.push(b);
+    }
+    order
+}
+
+/// [`lazy_greedy_d`] for single-row candidates: the arg-max of `S_b = 1 + b_bᵀ P b_b` (key:
+/// the gain `ln S_b`, or the gain per cost) by the pool and sweep search of `pool.rs`, which
+/// reads the rows in order instead of gathering them; same picks as the lazy search.
+fn pooled_greedy_d(
+    problem: &Problem,
+    feas: &Feasibility,
+    start: &[usize],
+    limit: Limit,
+    per_cost: bool,
+) -> Vec<usize> {
+    let mut feas = feas.with_chosen(start);
+    let mut state = kept_state(problem, &feas, start, false);
+    let n = problem.n_blocks();
+    let rows = &problem.rows;
+    let values: Vec<f64> = (0..n).map(|b| 1.0 + rows.block_norm_sq(b)).collect();
+    let alive: Vec<bool> = (0..n).map(|b| feas.can_add(b)).collect();
+    let mut search = PooledArgmax::new(rows, values, alive);
+    let floor = cost_floor(problem);
+    let key = |b: usize, v: f64| {
+        let gain = LazyGains::gain_of(&[v]);
+        if per_cost {
+            gain / problem.block_cost[b].max(floor)
+        } else {
+            gain
+        }
+    };
+    let keep = |_: usize, _: &[f64], v: f64| v;
+    let (max_count, mut remaining) = match limit {
+        Limit::Count(k) => (k, f64::INFINITY),
+        Limit::Budget(budget) => (usize::MAX, budget),
+    };
+    let mut order = Vec::new();
+    while order.len() < max_count {
+        let Some((b, _)) = search.argmax(state.u_all(), &key, &keep) else {
+            break;
+        };
+        search.remove(b);
         if !feas.can_add(b) || problem.block_cost[b] > remaining {
             continue; // constraints and the remaining budget only tighten: drop for good
         }

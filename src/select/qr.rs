@@ -19,7 +19,7 @@
 use rayon::prelude::*;
 
 use super::lazy::{lazy_argmax, Refresh};
-use super::pending::subtract_pending_squares;
+use super::pool::PooledArgmax;
 use super::rows::{dot, CandidateRows};
 
 /// The pivots of a lazy pivoted QR.
@@ -34,34 +34,34 @@ pub struct QrOrder {
 }
 
 /// Relative size below which a residual counts as round-off.
-pub(super) const RANK_TOL: f64 = 1e-12;
+const RANK_TOL: f64 = 1e-12;
 /// A refreshed squared norm below this fraction of the original is recomputed explicitly.
-pub(super) const RECOMPUTE_FRACTION: f64 = 1e-6;
+const RECOMPUTE_FRACTION: f64 = 1e-6;
 
 /// The orthonormal directions of the rows chosen so far (`Q`, one row-major column each).
-pub(super) struct Basis {
-    pub(super) n_modes: usize,
-    pub(super) q: Vec<f64>,
+struct Basis {
+    n_modes: usize,
+    q: Vec<f64>,
 }
 
 impl Basis {
-    pub(super) fn new(n_modes: usize) -> Self {
+    fn new(n_modes: usize) -> Self {
         Basis {
             n_modes,
             q: Vec::new(),
         }
     }
 
-    pub(super) fn n_q(&self) -> usize {
+    fn n_q(&self) -> usize {
         self.q.len() / self.n_modes
     }
 
-    pub(super) fn q_col(&self, j: usize) -> &[f64] {
+    fn q_col(&self, j: usize) -> &[f64] {
         &self.q[j * self.n_modes..(j + 1) * self.n_modes]
     }
 
     /// `v ← (I − Q Qᵀ)² v`: two Gram–Schmidt passes ("twice is enough", Giraud et al. 2005).
-    pub(super) fn project_out(&self, v: &mut [f64]) {
+    fn project_out(&self, v: &mut [f64]) {
         for _ in 0..2 {
             for q in self.q.chunks_exact(self.n_modes) {
                 let c = dot(q, v);
@@ -73,7 +73,7 @@ impl Basis {
     }
 
     /// Appends the orthonormalised rows of a block.
-    pub(super) fn absorb(&mut self, block: &[f64]) {
+    fn absorb(&mut self, block: &[f64]) {
         for row in block.chunks_exact(self.n_modes) {
             let mut v = row.to_vec();
             self.project_out(&mut v);
@@ -136,16 +136,7 @@ impl Refresh for NormSource<'_> {
 
     fn refresh(&mut self, items: &[usize], _threshold: f64, out: &mut [f64]) {
         let this = &*self;
-        let values: Vec<f64> = if self.rows.all_single() {
-            let stamps: Vec<usize> = items.iter().map(|&b| this.stamp[b]).collect();
-            let current: Vec<f64> = items.iter().map(|&b| this.norm_sq[b]).collect();
-            let raw = subtract_pending_squares(this.rows, &this.basis.q, items, &stamps, &current);
-            items
-                .iter()
-                .zip(raw)
-                .map(|(&b, s)| this.checked(b, s))
-                .collect()
-        } else if items.len() >= PARALLEL_MIN {
+        let values: Vec<f64> = if items.len() >= PARALLEL_MIN {
             items.par_iter().map(|&b| this.updated(b)).collect()
         } else {
             items.iter().map(|&b| this.updated(b)).collect()
@@ -165,8 +156,8 @@ const PARALLEL_MIN: usize = 2048;
 /// Lazy group-pivoted QR: up to `n_pick` blocks after the blocks in `start` (already chosen,
 /// projected out first). `accept(b)` is asked when `b` is the pivot; returning false drops it
 /// for good (constraints, budget). Blocks never offered to `accept` are never chosen.
-/// Single-row candidates go through the pool and sweep search of `qr_pool.rs`, blocks of
-/// several rows through the lazy search below; both give the pivots of the eager algorithm.
+/// Single-row candidates go through the pool and sweep search of `pool.rs`, blocks of several
+/// rows through the lazy search of `lazy.rs`; both give the pivots of the eager algorithm.
 pub fn lazy_pivoted_qr(
     rows: &CandidateRows,
     start: &[usize],
@@ -174,14 +165,68 @@ pub fn lazy_pivoted_qr(
     accept: impl FnMut(usize) -> bool,
 ) -> QrOrder {
     if rows.all_single() {
-        super::qr_pool::pooled_pivoted_qr(rows, start, n_pick, accept)
+        pooled_pivoted_qr(rows, start, n_pick, accept)
     } else {
         lazy_pivoted_qr_by_search(rows, start, n_pick, accept)
     }
 }
 
+/// [`lazy_pivoted_qr`] for single-row candidates, by [`PooledArgmax`] over residual norms.
+fn pooled_pivoted_qr(
+    rows: &CandidateRows,
+    start: &[usize],
+    n_pick: usize,
+    mut accept: impl FnMut(usize) -> bool,
+) -> QrOrder {
+    let r = rows.n_modes();
+    let n = rows.n_blocks();
+    let mut basis = Basis::new(r);
+    for &b in start {
+        basis.absorb(rows.block(b));
+    }
+    let original: Vec<f64> = (0..n).map(|b| rows.block_norm_sq(b)).collect();
+    let largest = original.iter().copied().fold(0.0, f64::max);
+    let mut alive = vec![true; n];
+    start.iter().for_each(|&b| alive[b] = false);
+    let mut search = PooledArgmax::new(rows, original.clone(), alive);
+    let key = |_: usize, v: f64| v;
+    let mut out = QrOrder::default();
+    while out.order.len() < n_pick {
+        if basis.n_q() >= r {
+            out.rank_exhausted = true;
+            break;
+        }
+        let fix = |i: usize, row: &[f64], s: f64| checked_residual(&basis, row, s, original[i]);
+        let Some((b, value)) = search.argmax(&basis.q, &key, &fix) else {
+            break;
+        };
+        if value <= RANK_TOL * RANK_TOL * largest {
+            out.rank_exhausted = true;
+            break;
+        }
+        search.remove(b);
+        if !accept(b) {
+            continue;
+        }
+        out.pivot_norms.push(value.sqrt());
+        basis.absorb(rows.block(b));
+        out.order.push(b);
+    }
+    out
+}
+
+/// `s` unless cancellation ate most of its digits; then the explicit residual norm² of `row`.
+fn checked_residual(basis: &Basis, row: &[f64], s: f64, original: f64) -> f64 {
+    if s >= RECOMPUTE_FRACTION * original {
+        return s.max(0.0);
+    }
+    let mut v = row.to_vec();
+    basis.project_out(&mut v);
+    dot(&v, &v)
+}
+
 /// [`lazy_pivoted_qr`] by the lazy arg-max over stale norms (any block sizes).
-pub(super) fn lazy_pivoted_qr_by_search(
+fn lazy_pivoted_qr_by_search(
     rows: &CandidateRows,
     start: &[usize],
     n_pick: usize,
@@ -281,6 +326,32 @@ mod tests {
             let rows = CandidateRows::from_blocks(r, data, &sizes);
             let lazy = lazy_pivoted_qr(&rows, &[], 3, |_| true);
             assert_eq!(lazy.order, eager(&rows, 3), "seed {seed}");
+        }
+    }
+
+    /// The pool and sweep search and the lazy search give the same pivots, with pools far
+    /// smaller than the candidate set (several sweeps) and with rejected pivots.
+    #[test]
+    fn pool_order_equals_lazy_order() {
+        use rand::{Rng, SeedableRng};
+        for seed in 0..4u64 {
+            let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+            let (r, n) = (9, 30_000);
+            let data: Vec<f64> = (0..n * r)
+                .map(|i| {
+                    let x = (i / r) as f64 / n as f64;
+                    (x * (1 + i % r) as f64 * 3.1).sin() + 0.05 * rng.random_range(-1.0..1.0)
+                })
+                .collect();
+            let rows = CandidateRows::from_single_rows(r, data);
+            let reject = |b: usize| b % 7 != 3;
+            let pooled = pooled_pivoted_qr(&rows, &[5], 8, reject);
+            let lazy = lazy_pivoted_qr_by_search(&rows, &[5], 8, reject);
+            assert_eq!(pooled.order, lazy.order, "seed {seed}");
+            assert_eq!(pooled.rank_exhausted, lazy.rank_exhausted);
+            for (a, b) in pooled.pivot_norms.iter().zip(&lazy.pivot_norms) {
+                assert!((a - b).abs() <= 1e-9 * b, "{a} {b}");
+            }
         }
     }
 
