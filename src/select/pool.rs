@@ -86,44 +86,42 @@ impl<'a> PooledArgmax<'a> {
         fix: &FixFn<'_>,
     ) -> Option<(usize, f64)> {
         let n_cols = cols.len() / self.rows.n_modes();
-        loop {
-            if let Some(pool) = &mut self.pool {
-                pool.update(cols, n_cols, fix);
-                match pool.best(key) {
-                    Some((slot, k)) if k > pool.tau => {
-                        return Some((pool.index[slot], pool.values[slot]));
-                    }
-                    _ => self.pool = None,
+        if let Some(pool) = &mut self.pool {
+            pool.update(cols, n_cols, fix);
+            if let Some((slot, k)) = pool.best(key) {
+                if k > pool.tau {
+                    return Some((pool.index[slot], pool.values[slot]));
                 }
             }
-            sweep(
-                self.rows,
-                cols,
-                self.synced,
-                n_cols,
-                &self.alive,
-                &mut self.values,
-                fix,
-            );
-            self.synced = n_cols;
-            let pool = Pool::fill(
-                self.rows,
-                &self.values,
-                &self.alive,
-                self.pool_size,
-                n_cols,
-                key,
-            )?;
-            match pool.best(key) {
-                Some((slot, k)) if k > pool.tau => {
-                    let found = (pool.index[slot], pool.values[slot]);
-                    self.pool = Some(pool);
-                    return Some(found);
-                }
-                // Only when every live key is −∞ or NaN: nothing left worth returning.
-                _ => return None,
-            }
+            self.pool = None;
         }
+        sweep(
+            self.rows,
+            cols,
+            self.synced,
+            n_cols,
+            &self.alive,
+            &mut self.values,
+            fix,
+        );
+        self.synced = n_cols;
+        let pool = Pool::fill(
+            self.rows,
+            &self.values,
+            &self.alive,
+            self.pool_size,
+            n_cols,
+            key,
+        )?;
+        // A fresh pool holds every key at or above its threshold and τ is below it, so its
+        // best beats τ unless every live key is −∞ or NaN: nothing left worth returning.
+        let (slot, k) = pool.best(key)?;
+        if k <= pool.tau {
+            return None;
+        }
+        let found = (pool.index[slot], pool.values[slot]);
+        self.pool = Some(pool);
+        Some(found)
     }
 }
 

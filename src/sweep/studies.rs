@@ -158,9 +158,9 @@ mod tests {
         // Rounded to three significant figures inside, the top kept exactly.
         let b = budget_settings(376_321.5, 2100.0);
         assert_eq!(b.len(), N_BUDGET_LEVELS);
-        assert_eq!(b[0], 2100.0);
-        assert_eq!(b[1], 4410.0);
-        assert_eq!(b[N_BUDGET_LEVELS - 1], 376_321.5);
+        assert_eq!(b[0].to_bits(), 2100.0f64.to_bits());
+        assert_eq!(b[1].to_bits(), 4410.0f64.to_bits());
+        assert_eq!(b[N_BUDGET_LEVELS - 1].to_bits(), 376_321.5f64.to_bits());
         assert!(b.windows(2).all(|w| w[0] < w[1]), "{b:?}");
         // Levels closer than the rounding collapse; a top below the cheapest sensor is one level.
         assert_eq!(budget_settings(1001.0, 1000.0), vec![1000.0, 1001.0]);
