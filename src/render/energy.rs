@@ -13,7 +13,7 @@ pub struct EnergyChart {
     pub title: String,
     pub energies: Vec<f64>,
     pub n_kept: usize,
-    /// Show at most this many modes.
+    /// Show at least this many modes (more when more are kept, so the kept rank is marked).
     pub n_show: usize,
     pub width: u32,
     pub plot_height: u32,
@@ -56,7 +56,11 @@ impl Figure for EnergyChart {
             .filter(|e| e.is_finite())
             .sum::<f64>()
             .max(1e-300);
-        let n = self.energies.len().min(self.n_show).max(1);
+        let n = self
+            .energies
+            .len()
+            .min(self.n_show.max(self.n_kept + self.n_kept / 10 + 1))
+            .max(1);
         let area = root
             .clone()
             .shrink((MARGIN, TITLE_H), (w - 2 * MARGIN, self.plot_height + 52));
