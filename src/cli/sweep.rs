@@ -115,7 +115,11 @@ pub fn run(args: SweepArgs) -> anyhow::Result<()> {
                     .filter_map(|e| pipeline.problem.find_block(e.candidate_idx, e.kind_idx))
                     .map(|b| pipeline.problem.block_cost[b])
                     .collect();
-                let cheapest = costs.iter().copied().fold(f64::INFINITY, f64::min);
+                let cheapest = costs
+                    .iter()
+                    .copied()
+                    .filter(|&c| c > 0.0)
+                    .fold(f64::INFINITY, f64::min);
                 budget_settings(costs.iter().sum(), cheapest)
             }
             StudyKind::Noise => crate::sweep::NOISE_MULTIPLIERS.to_vec(),

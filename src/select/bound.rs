@@ -569,7 +569,9 @@ pub(crate) fn bound_with_working_set(
         .enumerate()
         .map(|(i, &b)| (b, i))
         .collect();
-    let hinted: Vec<usize> = hint.iter().filter_map(|b| var_of.get(b).copied()).collect();
+    let mut hinted: Vec<usize> = hint.iter().filter_map(|b| var_of.get(b).copied()).collect();
+    hinted.sort_unstable();
+    hinted.dedup();
     let hint_weight: f64 = hinted.iter().map(|&i| relax.weight[i]).sum();
     if !hinted.is_empty() && hint_weight <= cap * (1.0 + 1e-12) {
         for &i in &hinted {
@@ -580,7 +582,13 @@ pub(crate) fn bound_with_working_set(
         }
         let z_hint: Vec<f64> = act
             .iter()
-            .map(|i| if hinted.contains(i) { 1.0 } else { 0.0 })
+            .map(|i| {
+                if hinted.binary_search(i).is_ok() {
+                    1.0
+                } else {
+                    0.0
+                }
+            })
             .collect();
         if let Some((f, l)) = relax.factor(&act, &z_hint) {
             g = gradient_pass(problem, &relax.vars, &inverse_factor_transposed(&l, r));
@@ -596,7 +604,13 @@ pub(crate) fn bound_with_working_set(
     let fill = (cap - 0.9 * hint_weight) / act_weight;
     let mut z = if !hinted.is_empty() && best_f.is_finite() && fill > 0.0 && 0.9 + fill < 1.0 {
         act.iter()
-            .map(|i| fill + if hinted.contains(i) { 0.9 } else { 0.0 })
+            .map(|i| {
+                fill + if hinted.binary_search(i).is_ok() {
+                    0.9
+                } else {
+                    0.0
+                }
+            })
             .collect()
     } else {
         uniform(&act)

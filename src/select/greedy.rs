@@ -781,6 +781,68 @@ mod tests {
     use super::*;
     use crate::select::{CandidatePlace, CandidateRows, Constraints, Prior};
 
+    /// The pool-and-sweep search where the pool is a third of the candidates (so it sweeps
+    /// again and again): plain and cost-benefit greedy pick what the textbook eager greedy
+    /// picks, every gain recomputed from scratch each step (common practice).
+    #[test]
+    fn pooled_greedy_equals_eager_greedy_beyond_the_pool() {
+        use crate::select::evaluate_set;
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let (n, r) = (12_000, 5);
+        let data: Vec<f64> = (0..n * r).map(|_| rng.random_range(-1.0..1.0)).collect();
+        let costs: Vec<f64> = (0..n).map(|_| rng.random_range(1.0..4.0)).collect();
+        let problem = Problem::from_noise_whitened(
+            CandidateRows::from_single_rows(r, data),
+            (0..n).collect(),
+            vec![0; n],
+            costs.clone(),
+            &Prior::Energies((0..r).map(|i| 0.6f64.powi(i as i32)).collect()),
+            (0..n)
+                .map(|i| CandidatePlace {
+                    id: format!("c{i}"),
+                    position: [i as f64, 0.0],
+                    zone: String::new(),
+                })
+                .collect(),
+            vec!["p".into()],
+        )
+        .unwrap();
+        let c = Constraints::default();
+        let feas = Feasibility::new(&problem, &c).unwrap();
+        let floor = cost_floor(&problem);
+        for (limit, per_cost) in [
+            (Limit::Count(6), false),
+            (Limit::Budget(9.0), true),
+            (Limit::Budget(9.0), false),
+        ] {
+            let pooled = plain_greedy(&problem, &feas, &[], Criterion::D, limit, per_cost);
+            let (max_count, mut remaining) = match limit {
+                Limit::Count(k) => (k, f64::INFINITY),
+                Limit::Budget(b) => (usize::MAX, b),
+            };
+            let mut eager: Vec<usize> = Vec::new();
+            while eager.len() < max_count {
+                let base = evaluate_set(&problem, &eager, Criterion::D);
+                let best = (0..n)
+                    .filter(|b| !eager.contains(b) && costs[*b] <= remaining)
+                    .map(|b| {
+                        let mut set = eager.clone();
+                        set.push(b);
+                        let gain = evaluate_set(&problem, &set, Criterion::D) - base;
+                        let per = if per_cost { costs[b].max(floor) } else { 1.0 };
+                        (gain / per, b)
+                    })
+                    .max_by(|a, b| a.0.total_cmp(&b.0).then(b.1.cmp(&a.1)));
+                let Some((_, b)) = best else { break };
+                remaining -= costs[b];
+                eager.push(b);
+            }
+            assert!(eager.len() >= 3, "{limit:?}: {eager:?}");
+            assert_eq!(pooled, eager, "{limit:?}, per cost {per_cost}");
+        }
+    }
+
     /// Khuller, Moss & Naor (1999): cheap sensor with a tiny gain (best gain per cost) versus
     /// one that costs the whole budget. Cost-benefit greedy alone is arbitrarily bad here; the
     /// best-single guard on its own (plain-greedy guard off) must pick the expensive sensor.

@@ -56,6 +56,7 @@ impl<'a> PooledArgmax<'a> {
     /// `values[i]`: candidate `i`'s value before any column; `alive[i]`: whether it may be
     /// returned.
     pub(crate) fn new(rows: &'a CandidateRows, values: Vec<f64>, alive: Vec<bool>) -> Self {
+        debug_assert!(rows.all_single(), "the pool reads candidate i as row i");
         let n = values.len();
         PooledArgmax {
             rows,
@@ -199,6 +200,7 @@ impl Pool {
             .step_by(stride)
             .filter(|&i| alive[i])
             .map(|i| key(i, values[i]))
+            .filter(|k| !k.is_nan())
             .collect();
         sample.sort_unstable_by(|a, b| b.total_cmp(a));
         let rank = (size * (n / stride).max(1)) / n.max(1);

@@ -90,8 +90,10 @@ pub fn run_plan(
     let full_cost: f64 = new_entries()
         .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
         .sum();
+    // Free sensors need no budget: the levels start at the cheapest paid one.
     let cheapest = new_entries()
         .map(|e| ctx.problem.block_cost[block_of(ctx, e)])
+        .filter(|&c| c > 0.0)
         .fold(f64::INFINITY, f64::min);
     let max_count = new_entries().count().max(1);
     let top_budget = match options.goal {

@@ -69,8 +69,17 @@ pub fn budget_settings(top: f64, cheapest: f64) -> Vec<f64> {
                 return top;
             }
             let b = cheapest * ratio.powf(i as f64 / last as f64);
-            let unit = 10f64.powf(b.log10().floor() - 2.0);
-            ((b / unit).round() * unit).clamp(cheapest, top)
+            // Three significant figures, scaling by an exact power of ten either way so no
+            // binary fraction of a tenth creeps in (13.7, not 13.700000000000001).
+            let exponent = b.log10().floor() as i32 - 2;
+            let rounded = if exponent >= 0 {
+                let unit = 10f64.powi(exponent);
+                (b / unit).round() * unit
+            } else {
+                let scale = 10f64.powi(-exponent);
+                (b * scale).round() / scale
+            };
+            rounded.clamp(cheapest, top)
         })
         .collect();
     budgets.dedup_by(|a, b| (*a - *b).abs() <= 1e-9 * b.abs().max(1.0));
@@ -165,5 +174,8 @@ mod tests {
         // Levels closer than the rounding collapse; a top below the cheapest sensor is one level.
         assert_eq!(budget_settings(1001.0, 1000.0), vec![1000.0, 1001.0]);
         assert_eq!(budget_settings(500.0, 600.0), vec![600.0]);
+        // Small amounts keep exact decimals: 10 → 20 in equal ratios.
+        let small = budget_settings(20.0, 10.0);
+        assert_eq!(small[3].to_string(), "13.5");
     }
 }

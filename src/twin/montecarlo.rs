@@ -647,13 +647,22 @@ fn nudging_tuning_runs(
         let fused = fused_ops(&shared, &span);
         let first = FIRST_TUNING_RUN + w * N_TUNING_RUNS;
         let runs = gain_block(&shared, &span, fused.as_ref(), first..first + N_TUNING_RUNS);
-        let diverged = runs
+        // The free run does not depend on the strength: a run whose free run blew up drops
+        // out for every strength alike. Only a diverged nudged run makes the window infinite.
+        let usable: Vec<&RunOutcome> = runs
+            .iter()
+            .filter(|r| r.free_mean_rmse.is_finite() && r.free_mean_rmse > 0.0)
+            .collect();
+        if usable.is_empty() {
+            continue;
+        }
+        let diverged = usable
             .iter()
             .any(|r| r.divergence.is_some() || !r.ratio_to_free.is_finite());
         scores.push(if diverged {
             vec![f64::INFINITY]
         } else {
-            runs.iter().map(|r| r.ratio_to_free).collect()
+            usable.iter().map(|r| r.ratio_to_free).collect()
         });
     }
     Ok(scores)
@@ -662,8 +671,12 @@ fn nudging_tuning_runs(
 /// Most training windows the nudging strength is tuned on.
 pub const MAX_TUNING_WINDOWS: usize = 8;
 
+/// Mean of tuning scores; none at all (every free run blew up) scores as the worst.
 fn mean(values: &[f64]) -> f64 {
-    values.iter().sum::<f64>() / values.len().max(1) as f64
+    if values.is_empty() {
+        return f64::INFINITY;
+    }
+    values.iter().sum::<f64>() / values.len() as f64
 }
 
 /// Standard error of the mean of `values` (0 for fewer than two or any not finite).
@@ -725,24 +738,29 @@ pub fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<NudgeTuni
     let best_windows: Vec<f64> = best_runs.iter().map(|w| mean(w)).collect();
     let best_score = mean(&best_windows);
     // Over the windows when there are several (their spread holds the change of conditions
-    // along the record), else over the runs of the one window.
+    // along the record), else over the runs of the one window. Windows overlap when the
+    // training span is short, so they count as only as many as fit side by side.
+    let len = prep.split.n_test.min(prep.split.n_train).max(1);
+    let side_by_side = (prep.split.n_train / len).max(1);
     let se = match best_runs.as_slice() {
         [only] => standard_error(only),
-        _ => standard_error(&best_windows),
+        _ => {
+            standard_error(&best_windows)
+                * (best_windows.len() as f64 / side_by_side as f64)
+                    .max(1.0)
+                    .sqrt()
+        }
     };
     let threshold = best_score + se;
-    // The weakest grid strength inside the band; the crossing lies between it and the grid
-    // strength below (or at the lower end of the grid).
-    let inside = (0..grid.len())
-        .find(|&i| grid[i] <= best_strength && scores[i] <= threshold)
-        .unwrap_or(best);
-    let (mut strength, mut score) = if grid[inside] <= best_strength {
-        (grid[inside], scores[inside])
-    } else {
-        (best_strength, best_score)
+    // The weakest grid strength inside the band, else the minimiser itself; the crossing
+    // lies between it and the grid strength below it (if any).
+    let inside = (0..grid.len()).find(|&i| grid[i] <= best_strength && scores[i] <= threshold);
+    let (mut strength, mut score) = match inside {
+        Some(i) => (grid[i], scores[i]),
+        None => (best_strength, best_score),
     };
-    if inside > 0 && se > 0.0 {
-        let below = grid[inside - 1];
+    let below = grid.iter().copied().filter(|&g| g < strength).last();
+    if let (Some(below), true) = (below, se > 0.0) {
         let above = strength;
         let excess = |log_g: f64| -> f64 {
             nudging_training_score(prep, settings, log_g.exp()).unwrap_or(f64::INFINITY) - threshold

@@ -124,7 +124,7 @@ pub fn crossing(
         .configure(|state| state.max_iters(40))
         .run()
         .map_err(|e| TwinError::Numerical(format!("tuning the nudging strength: {e}")))?;
-    // The last iterate: "best" in argmin's state means lowest cost, not closest to zero.
+    // The last iterate, within the tolerance of the crossing (the caller accepts that slack).
     Ok(result.state().get_param().copied())
 }
 
