@@ -759,7 +759,7 @@ pub fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<NudgeTuni
         Some(i) => (grid[i], scores[i]),
         None => (best_strength, best_score),
     };
-    let below = grid.iter().copied().filter(|&g| g < strength).last();
+    let below = grid.iter().copied().rev().find(|&g| g < strength);
     if let (Some(below), true) = (below, se > 0.0) {
         let above = strength;
         let excess = |log_g: f64| -> f64 {
