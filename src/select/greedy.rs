@@ -62,6 +62,17 @@ impl Ord for Key {
     }
 }
 
+/// The lowest cost of any block: once the remaining budget is below it nothing more fits, so
+/// a budgeted search stops instead of drawing every candidate only to drop it.
+fn cheapest_cost(problem: &Problem) -> f64 {
+    problem
+        .block_cost
+        .iter()
+        .copied()
+        .fold(f64::INFINITY, f64::min)
+        .max(0.0)
+}
+
 /// Floor under costs for gain-per-cost keys, so free sensors rank first without dividing by 0.
 fn cost_floor(problem: &Problem) -> f64 {
     1e-9 * problem.block_cost.iter().copied().fold(1.0, f64::max)
@@ -283,9 +294,10 @@ fn lazy_greedy_d(
         Limit::Count(k) => (k, f64::INFINITY),
         Limit::Budget(budget) => (usize::MAX, budget),
     };
+    let cheapest = cheapest_cost(problem);
     let mut order = Vec::new();
     let mut hot = Vec::new();
-    while order.len() < max_count {
+    while order.len() < max_count && remaining >= cheapest {
         let mut source = GainSource {
             problem,
             state: &state,
@@ -339,8 +351,9 @@ fn pooled_greedy_d(
         Limit::Count(k) => (k, f64::INFINITY),
         Limit::Budget(budget) => (usize::MAX, budget),
     };
+    let cheapest = cheapest_cost(problem);
     let mut order = Vec::new();
-    while order.len() < max_count {
+    while order.len() < max_count && remaining >= cheapest {
         let Some((b, _)) = search.argmax(state.u_all(), &key, &keep) else {
             break;
         };
