@@ -714,16 +714,19 @@ mod tests {
         .unwrap()
     }
 
+    /// Single- and two-row candidates under a count and a budget, 400 of them with 6 modes.
+    const CASES: [(bool, Limit); 3] = [
+        (false, Limit::Count(4)),
+        (true, Limit::Count(6)),
+        (true, Limit::Budget(9.0)),
+    ];
+
     /// The working set changes the route, not the answer: a small first working set (column
     /// generation over several passes) and the whole set in one go give the same relaxed
     /// maximum to the tolerance, and both certificates bound it from above.
     #[test]
     fn working_set_and_full_set_agree() {
-        for (two_rows, limit) in [
-            (false, Limit::Count(4)),
-            (true, Limit::Count(6)),
-            (true, Limit::Budget(9.0)),
-        ] {
+        for (two_rows, limit) in CASES {
             let p = problem(3, 400, 6, two_rows);
             let c = Constraints::default();
             let feas = Feasibility::new(&p, &c).unwrap();
@@ -748,11 +751,7 @@ mod tests {
     #[test]
     fn starting_from_a_layout_gives_the_same_bound() {
         use crate::select::{evaluate_set, greedy_order, Criterion};
-        for (two_rows, limit) in [
-            (false, Limit::Count(4)),
-            (true, Limit::Count(6)),
-            (true, Limit::Budget(9.0)),
-        ] {
+        for (two_rows, limit) in CASES {
             let p = problem(3, 400, 6, two_rows);
             let c = Constraints::default();
             let feas = Feasibility::new(&p, &c).unwrap();

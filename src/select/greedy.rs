@@ -47,6 +47,16 @@ pub enum Limit {
     Budget(f64),
 }
 
+impl Limit {
+    /// Most new sensors and money left: a count leaves the money unbounded, a budget the count.
+    pub(crate) fn count_and_budget(self) -> (usize, f64) {
+        match self {
+            Limit::Count(k) => (k, f64::INFINITY),
+            Limit::Budget(budget) => (usize::MAX, budget),
+        }
+    }
+}
+
 /// Total order on f64 for heap keys.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct Key(pub f64);
@@ -290,10 +300,7 @@ fn lazy_greedy_d(
             }
         })
         .collect();
-    let (max_count, mut remaining) = match limit {
-        Limit::Count(k) => (k, f64::INFINITY),
-        Limit::Budget(budget) => (usize::MAX, budget),
-    };
+    let (max_count, mut remaining) = limit.count_and_budget();
     let cheapest = cheapest_cost(problem);
     let mut order = Vec::new();
     let mut hot = Vec::new();
@@ -347,10 +354,7 @@ fn pooled_greedy_d(
         }
     };
     let keep = |_: usize, _: &[f64], v: f64| v;
-    let (max_count, mut remaining) = match limit {
-        Limit::Count(k) => (k, f64::INFINITY),
-        Limit::Budget(budget) => (usize::MAX, budget),
-    };
+    let (max_count, mut remaining) = limit.count_and_budget();
     let cheapest = cheapest_cost(problem);
     let mut order = Vec::new();
     while order.len() < max_count && remaining >= cheapest {
@@ -583,10 +587,7 @@ fn rescoring_greedy(
     let mut state = kept_state(problem, &feas, start, criterion == Criterion::E);
     let mut post = (criterion == Criterion::A).then(|| PosteriorRows::new(problem, &state));
     let floor = cost_floor(problem);
-    let (max_count, mut remaining) = match limit {
-        Limit::Count(k) => (k, f64::INFINITY),
-        Limit::Budget(budget) => (usize::MAX, budget),
-    };
+    let (max_count, mut remaining) = limit.count_and_budget();
     let mut order = Vec::new();
     while order.len() < max_count {
         let open: Vec<usize> = (0..problem.n_blocks())
@@ -830,10 +831,7 @@ mod tests {
             (Limit::Budget(9.0), false),
         ] {
             let pooled = plain_greedy(&problem, &feas, &[], Criterion::D, limit, per_cost);
-            let (max_count, mut remaining) = match limit {
-                Limit::Count(k) => (k, f64::INFINITY),
-                Limit::Budget(b) => (usize::MAX, b),
-            };
+            let (max_count, mut remaining) = limit.count_and_budget();
             let mut eager: Vec<usize> = Vec::new();
             while eager.len() < max_count {
                 let base = evaluate_set(&problem, &eager, Criterion::D);

@@ -173,6 +173,7 @@ fn sweep(
 struct Pool {
     /// Candidate index of each slot, ascending (about the pool size, by a sampled threshold).
     index: Vec<usize>,
+    n_modes: usize,
     rows: Vec<f64>,
     /// Value of each slot (−∞ once removed).
     values: Vec<f64>,
@@ -246,6 +247,7 @@ impl Pool {
         Some(Pool {
             values: index.iter().map(|&i| values[i]).collect(),
             index,
+            n_modes: r,
             rows: pool_rows,
             synced,
             tau,
@@ -258,7 +260,7 @@ impl Pool {
         if from == n_cols {
             return;
         }
-        let r = self.rows.len() / self.index.len().max(1);
+        let r = self.n_modes;
         let (rows, index) = (&self.rows, &self.index);
         self.values
             .par_chunks_mut(POOL_CHUNK)

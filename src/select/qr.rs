@@ -112,20 +112,8 @@ impl NormSource<'_> {
     }
 
     /// `s` unless cancellation ate most of its digits; then the explicit residual norm².
-    fn checked(&self, b: usize, mut s: f64) -> f64 {
-        let r = self.rows.n_modes();
-        let block = self.rows.block(b);
-        if s < RECOMPUTE_FRACTION * self.original[b] {
-            // Most digits lost to cancellation: recompute from the explicit residual.
-            s = 0.0;
-            let mut scratch = vec![0.0; r];
-            for row in block.chunks_exact(r) {
-                scratch.copy_from_slice(row);
-                self.basis.project_out(&mut scratch);
-                s += dot(&scratch, &scratch);
-            }
-        }
-        s.max(0.0)
+    fn checked(&self, b: usize, s: f64) -> f64 {
+        checked_residual(self.basis, self.rows.block(b), s, self.original[b])
     }
 }
 
@@ -215,14 +203,20 @@ fn pooled_pivoted_qr(
     out
 }
 
-/// `s` unless cancellation ate most of its digits; then the explicit residual norm² of `row`.
-fn checked_residual(basis: &Basis, row: &[f64], s: f64, original: f64) -> f64 {
+/// `s`, the refreshed squared residual norm of `block` (its rows), unless cancellation ate
+/// most of its digits (below [`RECOMPUTE_FRACTION`] of `original`, the norm² before any
+/// column); then the norm² of the explicit residual, as LAPACK does.
+fn checked_residual(basis: &Basis, block: &[f64], s: f64, original: f64) -> f64 {
     if s >= RECOMPUTE_FRACTION * original {
         return s.max(0.0);
     }
-    let mut v = row.to_vec();
-    basis.project_out(&mut v);
-    dot(&v, &v)
+    let mut explicit = 0.0;
+    for row in block.chunks_exact(basis.n_modes) {
+        let mut v = row.to_vec();
+        basis.project_out(&mut v);
+        explicit += dot(&v, &v);
+    }
+    explicit
 }
 
 /// [`lazy_pivoted_qr`] by the lazy arg-max over stale norms (any block sizes).
@@ -283,10 +277,7 @@ mod tests {
     /// Plain (eager) pivoted Gram–Schmidt: the textbook algorithm, every norm every step.
     fn eager(rows: &CandidateRows, n_pick: usize) -> Vec<usize> {
         let r = rows.n_modes();
-        let mut basis = Basis {
-            n_modes: r,
-            q: Vec::new(),
-        };
+        let mut basis = Basis::new(r);
         let mut chosen = vec![false; rows.n_blocks()];
         let mut order = Vec::new();
         for _ in 0..n_pick {

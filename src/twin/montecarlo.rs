@@ -605,10 +605,14 @@ pub fn nudging_window_scores(
     settings: &RunSettings,
     strength: f64,
 ) -> Result<Vec<f64>, TwinError> {
-    Ok(nudging_tuning_runs(prep, settings, strength)?
-        .iter()
-        .map(|runs| mean(runs))
-        .collect())
+    Ok(window_means(&nudging_tuning_runs(
+        prep, settings, strength,
+    )?))
+}
+
+/// Mean score of each window's runs.
+fn window_means(runs: &[Vec<f64>]) -> Vec<f64> {
+    runs.iter().map(|w| mean(w)).collect()
 }
 
 /// Ratio to the free run of every tuning run, per training window (see
@@ -714,11 +718,11 @@ pub struct NudgeTuning {
 /// than it gains; the rule leans towards the weaker gain the training data cannot tell apart.
 pub fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<NudgeTuning, TwinError> {
     let grid = super::nudge::strength_grid();
-    let mut windows = Vec::with_capacity(grid.len());
+    let mut grid_runs = Vec::with_capacity(grid.len());
     for &g in &grid {
-        windows.push(nudging_window_scores(prep, settings, g)?);
+        grid_runs.push(nudging_tuning_runs(prep, settings, g)?);
     }
-    let scores: Vec<f64> = windows.iter().map(|w| mean(w)).collect();
+    let scores: Vec<f64> = grid_runs.iter().map(|r| mean(&window_means(r))).collect();
     let best = (0..grid.len())
         .min_by(|&i, &j| scores[i].total_cmp(&scores[j]).then(i.cmp(&j)))
         .unwrap_or(0);
@@ -729,13 +733,12 @@ pub fn tune_nudging(prep: &Prepared, settings: &RunSettings) -> Result<NudgeTuni
     };
     let refined = tune_strength(&objective, lo.ln(), hi.ln())?.exp();
     let refined_runs = nudging_tuning_runs(prep, settings, refined)?;
-    let refined_score = mean(&refined_runs.iter().map(|w| mean(w)).collect::<Vec<_>>());
-    let (best_strength, best_runs) = if refined_score < scores[best] {
+    let (best_strength, best_runs) = if mean(&window_means(&refined_runs)) < scores[best] {
         (refined, refined_runs)
     } else {
-        (grid[best], nudging_tuning_runs(prep, settings, grid[best])?)
+        (grid[best], grid_runs.swap_remove(best))
     };
-    let best_windows: Vec<f64> = best_runs.iter().map(|w| mean(w)).collect();
+    let best_windows = window_means(&best_runs);
     let best_score = mean(&best_windows);
     // Over the windows when there are several (their spread holds the change of conditions
     // along the record), else over the runs of the one window. Windows overlap when the
